@@ -1,0 +1,23 @@
+"""Runs every analysis that exists on a built workspace (used by `liftlag demo`).
+
+Each analysis package registers a runner here as it lands; the demo runs them in order.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+RUNNERS: list = []  # callables (settings, out_dir, console) -> dict of facts for the manifest
+
+
+def run_all(settings, out: Path, console=None, timings: dict | None = None) -> list[str]:
+    import time
+
+    ran = []
+    for runner in RUNNERS:
+        started = time.perf_counter()
+        runner(settings, out, console)
+        if timings is not None:
+            timings[runner.__name__] = round(time.perf_counter() - started, 2)
+        ran.append(runner.__name__)
+    return ran

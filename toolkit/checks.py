@@ -1,0 +1,274 @@
+"""Validation: every row read is accepted or rejected with its reason; odd rows are counted.
+
+The rules are the files in ``sql/checks/``, one rule per file, run in the order of ``RULES``.
+Each file selects ``(table_name, _row_id, detail)`` for the rows it trips. A rejected row's
+``reason`` is the first rejection rule it trips (the others are kept in ``other_reasons``), so
+accepted + rejected = read holds per table by construction, and is verified before anything is
+written. Warnings never remove a row.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+
+from . import sources, workspace
+from .config import Settings
+from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
+from .engine.duckdb import connect as engine_connect
+from .engine.duckdb import quote_ident as q
+from .engine.duckdb import scalar
+from .errors import DataError
+
+SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
+CHECKS_DIR = SQL_DIR / "checks"
+
+
+@dataclass(frozen=True)
+class Rule:
+    name: str
+    severity: str  # "reject" or "warn"
+    after_promotions: bool = False  # needs the accepted promotions (runs after every promotions rule)
+
+    @property
+    def path(self) -> Path:
+        return CHECKS_DIR / f"{self.name}.sql"
+
+    def sql(self) -> str:
+        return self.path.read_text(encoding="utf-8")
+
+
+# The explicit run order. A rejected row's reason is the first rejection rule it trips.
+RULES: tuple[Rule, ...] = (
+    Rule("missing_required", "reject"),
+    Rule("unparseable_value", "reject"),
+    Rule("duplicate_row", "reject"),
+    Rule("duplicate_key", "reject"),
+    Rule("value_not_allowed", "reject"),
+    Rule("ends_before_starts", "reject"),
+    Rule("unknown_promotion", "reject", after_promotions=True),
+    Rule("discount_deeper_than_depth", "warn", after_promotions=True),
+    Rule("order_outside_promotion_dates", "warn", after_promotions=True),
+    Rule("customer_in_both_arms", "warn"),
+    Rule("future_timestamp", "warn"),
+    Rule("net_above_list", "warn"),
+)
+
+WARNING_EXAMPLES = 1000  # rows kept per warning rule in warning_rows; the summary counts them all
+
+
+@dataclass
+class CheckResult:
+    """What `liftlag check` found, per table."""
+
+    summary: pd.DataFrame  # table, rows_read, accepted, rejected, warnings
+    rejects: pd.DataFrame  # table, reason, rows
+    warnings: pd.DataFrame  # table, rule, rows
+    problems: list[str] = field(default_factory=list)  # reasons the data cannot be used
+    fingerprint: str = ""
+    seconds: float = 0.0
+
+    @property
+    def usable(self) -> bool:
+        return not self.problems
+
+
+def input_fingerprint(settings: Settings) -> tuple[str, dict]:
+    files = {}
+    for name, table in settings.tables.items():
+        files[name] = sources.fingerprint_files(sources.resolve_files(settings, table))
+    rules = {r.name: r.sql() for r in RULES}
+    source_code = Path(sources.__file__).read_text(encoding="utf-8")
+    config = {k: v for k, v in settings.raw.items() if k in ("tables", "economics")}
+    return workspace.fingerprint(config, files, rules, source_code), files
+
+
+def _accepted_select(con, name: str) -> str:
+    """SELECT of one table's accepted rows, with the contract's derivations applied."""
+    contract = INPUT_TABLES[name]
+    cols = [c.name for c in contract.columns]
+    extras = []
+    if contract.extra_columns:
+        described = [r[0] for r in con.execute(f"DESCRIBE {q('staged_' + name)}").fetchall()]
+        extras = [c for c in described if not c.startswith("_") and c not in cols]
+    exprs = []
+    for c in cols:
+        if name == "transactions" and c == "list_amount":
+            # list = net + discount; derive the missing one (no discount known: list = net).
+            exprs.append("coalesce(list_amount, net_amount + discount_amount, net_amount) AS list_amount")
+        elif name == "transactions" and c == "discount_amount":
+            exprs.append("coalesce(discount_amount, list_amount - net_amount, 0.0) AS discount_amount")
+        else:
+            exprs.append(q(c))
+    exprs += [_typed_attribute(con, name, e) for e in extras]
+    return (
+        f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s "
+        f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
+    )
+
+
+def _typed_attribute(con, table: str, column: str) -> str:
+    """Customer attributes arrive as text from CSV: give each the narrowest type all its values take."""
+    col = q(column)
+    dtype = scalar(con, f"SELECT typeof({col}) FROM {q('staged_' + table)} LIMIT 1")
+    if dtype != "VARCHAR":
+        return col
+    for target in ("BOOLEAN", "BIGINT", "DOUBLE"):
+        bad = scalar(
+            con,
+            f"SELECT count(*) FROM {q('staged_' + table)} WHERE {col} IS NOT NULL AND trim({col}) <> '' "
+            f"AND TRY_CAST({col} AS {target}) IS NULL",
+        )
+        if bad == 0:
+            return f"TRY_CAST(NULLIF(trim({col}), '') AS {target}) AS {col}"
+    return col
+
+
+def run(settings: Settings, progress=None) -> CheckResult:
+    """Validate the export and write ``checked.duckdb`` to the workspace.
+
+    Parameters
+    ----------
+    settings : Settings
+        The loaded config.
+    progress : callable, optional
+        Called with a short text before each step.
+
+    Raises
+    ------
+    DataError
+        A file is missing, empty or unreadable, or a required column is absent.
+    """
+    started = time.perf_counter()
+    say = progress or (lambda text: None)
+    fp, _ = input_fingerprint(settings)
+    con = engine_connect(settings)
+    try:
+        infos = sources.register(con, settings, progress=say)
+        con.execute(sources.staged_union_sql())
+        con.execute("SET VARIABLE allowed_arm = ?", [list(ARMS)])
+        con.execute("SET VARIABLE allowed_mechanic = ?", [list(MECHANICS)])
+        con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
+        con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
+        con.execute(
+            "CREATE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
+            "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
+        )
+        promotions_ready = False
+        for order, rule in enumerate(RULES):
+            if rule.after_promotions and not promotions_ready:
+                con.execute(
+                    "CREATE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions AS s "
+                    "ANTI JOIN (SELECT _row_id FROM check_hits WHERE table_name = 'promotions' "
+                    "AND severity = 'reject') AS h ON s._row_id = h._row_id"
+                )
+                promotions_ready = True
+            say(f"rule {rule.name}")
+            con.execute(
+                f"INSERT INTO check_hits SELECT table_name, _row_id, ?, ?, ?, detail FROM ({rule.sql()})",
+                [rule.name, rule.severity, order],
+            )
+        con.execute(
+            "CREATE TEMP TABLE rejected AS SELECT table_name, _row_id, "
+            "arg_min(rule, rule_order) AS reason, arg_min(detail, rule_order) AS detail, "
+            "string_agg(rule, ', ' ORDER BY rule_order) AS all_reasons "
+            "FROM check_hits WHERE severity = 'reject' GROUP BY table_name, _row_id"
+        )
+        # Warnings count only rows that are kept.
+        con.execute(
+            "CREATE TEMP TABLE warned AS SELECT h.* FROM check_hits AS h "
+            "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
+            "WHERE h.severity = 'warn'"
+        )
+        summary = _summary(con, infos)
+        with workspace.atomic_database(settings, workspace.CHECKED) as target:
+            say("writing accepted rows")
+            con.execute("ATTACH ? AS out", [str(target)])
+            for name in INPUT_TABLES:
+                con.execute(f"CREATE TABLE out.{q(name)} AS {_accepted_select(con, name)}")
+            _write_rejects(con)
+            con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df", )
+            con.execute("DETACH out")
+        problems = _problems(summary, con)
+        rejects = con.execute("SELECT * FROM rejects_summary_df").df()
+        warnings = con.execute(
+            "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
+        ).df()
+    finally:
+        con.close()
+    state = workspace.read_state(settings)
+    state["check"] = {"fingerprint": fp, "usable": not problems, "problems": problems,
+                      "summary": summary.to_dict(orient="records")}
+    state.pop("build", None)
+    workspace.write_state(settings, state)
+    return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started)
+
+
+def _summary(con, infos: dict) -> pd.DataFrame:
+    rows = []
+    for name in INPUT_TABLES:
+        read = infos[name].rows if name in infos else 0
+        rejected = scalar(con, "SELECT count(*) FROM rejected WHERE table_name = ?", [name])
+        warned = scalar(con, "SELECT count(DISTINCT _row_id) FROM warned WHERE table_name = ?", [name])
+        rows.append({"table": name, "configured": name in infos, "rows_read": read,
+                     "accepted": read - rejected, "rejected": rejected, "warnings": warned})
+    summary = pd.DataFrame(rows)
+    # accepted + rejected = read: verify against the staged rows themselves, not by subtraction.
+    for name in infos:
+        kept = scalar(
+            con,
+            f"SELECT count(*) FROM {q('staged_' + name)} AS s ANTI JOIN rejected AS r "
+            f"ON r.table_name = ? AND r._row_id = s._row_id",
+            [name],
+        )
+        expected = int(summary.loc[summary["table"] == name, "accepted"].iloc[0])
+        if kept != expected:
+            raise DataError(f"table {name}: internal count mismatch, {kept} rows kept but {expected} expected")
+    con.register("summary_df", summary)
+    rejects = con.execute(
+        "SELECT table_name AS \"table\", reason, count(*) AS rows FROM rejected GROUP BY ALL ORDER BY 1, 2"
+    ).df()
+    con.register("rejects_summary_df", rejects)
+    return summary
+
+
+def _write_rejects(con) -> None:
+    parts = []
+    for name in INPUT_TABLES:
+        parts.append(
+            f"SELECT r.table_name, r._row_id AS row_id, s._source_file AS source_file, r.reason, r.detail, "
+            f"r.all_reasons, s._raw_values AS raw_values FROM rejected AS r "
+            f"INNER JOIN {q('staged_' + name)} AS s ON r._row_id = s._row_id WHERE r.table_name = '{name}'"
+        )
+    con.execute("CREATE TABLE out.rejected_rows AS " + " UNION ALL ".join(parts))
+    con.execute("CREATE TABLE out.rejects_summary AS SELECT * FROM rejects_summary_df")
+    con.execute(
+        "CREATE TABLE out.warnings_summary AS SELECT table_name AS \"table\", rule, count(*) AS rows "
+        "FROM warned GROUP BY ALL ORDER BY 1, 2"
+    )
+    con.execute(
+        "CREATE TABLE out.warning_rows AS SELECT table_name, _row_id AS row_id, rule, detail FROM ("
+        "SELECT *, row_number() OVER (PARTITION BY table_name, rule ORDER BY _row_id) AS n FROM warned) "
+        f"WHERE n <= {WARNING_EXAMPLES}"
+    )
+
+
+def _problems(summary: pd.DataFrame, con) -> list[str]:
+    problems = []
+    for row in summary.itertuples():
+        if not row.configured:
+            continue
+        if row.rows_read == 0:
+            problems.append(f"table {row.table}: no rows read; the export is empty")
+        elif row.accepted == 0 and not INPUT_TABLES[row.table].optional:
+            problems.append(f"table {row.table}: all {row.rows_read} rows rejected; see the rejects summary")
+    inverted = con.execute(
+        "SELECT detail FROM rejected WHERE table_name = 'promotions' AND reason = 'ends_before_starts' ORDER BY _row_id"
+    ).fetchall()
+    for (detail,) in inverted:
+        problems.append(f"table promotions: {detail}; fix its dates (ends_at is the last day the promotion runs)")
+    return problems

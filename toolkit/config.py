@@ -1,0 +1,313 @@
+"""``liftlag.toml`` -> typed settings.
+
+Every error names the file and the key, shows what was found and says what was expected.
+Unknown keys are errors, with the nearest valid key suggested.
+"""
+
+from __future__ import annotations
+
+import difflib
+import re
+import tomllib
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+from .contract import INPUT_TABLES
+from .errors import ConfigError
+
+FORMATS = ("parquet", "csv", "duckdb")
+
+
+@dataclass(frozen=True)
+class TableSettings:
+    """Where one input table lives and how its columns map onto the contract."""
+
+    name: str
+    path: str
+    format: str
+    columns: dict[str, str] = field(default_factory=dict)  # contract name -> export column
+    values: dict[str, dict[str, str]] = field(default_factory=dict)  # column -> contract value -> export value
+    formats: dict[str, str] = field(default_factory=dict)  # column -> strptime format
+    delimiter: str | None = None
+    header: bool = True
+    table: str | None = None  # for format = "duckdb": the table inside the database file
+    hive_partitioning: bool | None = None
+
+    def export_column(self, contract_name: str) -> str:
+        return self.columns.get(contract_name, contract_name)
+
+
+@dataclass(frozen=True)
+class EconomicsSettings:
+    margin_rate: float | None = None
+    currency: str = "EUR"
+
+
+@dataclass(frozen=True)
+class WindowSettings:
+    pre_period_days: int = 365
+    after_days: int = 28
+
+
+@dataclass(frozen=True)
+class CampaignSettings:
+    holdout_share: float | None = None
+    holdout_share_by_promotion: dict[str, float] = field(default_factory=dict)
+    untargeted_share: float = 0.2
+    folds: int = 5
+    seed: int = 20261201
+    min_arm_size: int = 50
+    alpha: float = 0.05
+
+
+@dataclass(frozen=True)
+class TimingSettings:
+    dip_days: int = 21
+    anticipation_days: int = 7
+    anticipation_min_coupons: int = 2
+    horizon_days: int = 90
+    cox_sample_customers: int = 20000
+    bootstrap_rounds: int = 50
+    seed: int = 20261201
+    alpha: float = 0.05
+
+
+@dataclass(frozen=True)
+class ReportSettings:
+    small_cell: int = 10
+
+
+@dataclass(frozen=True)
+class WorkspaceSettings:
+    path: Path = Path(".liftlag")
+
+
+@dataclass(frozen=True)
+class EngineSettings:
+    threads: int | None = None
+    memory_limit: str | None = None
+    temp_directory: Path | None = None
+
+
+@dataclass(frozen=True)
+class Settings:
+    """All of a ``liftlag.toml``, typed. Relative paths are resolved against the file's folder."""
+
+    config_path: Path
+    tables: dict[str, TableSettings]
+    economics: EconomicsSettings = EconomicsSettings()
+    windows: WindowSettings = WindowSettings()
+    campaign: CampaignSettings = CampaignSettings()
+    timing: TimingSettings = TimingSettings()
+    report: ReportSettings = ReportSettings()
+    workspace: WorkspaceSettings = WorkspaceSettings()
+    engine: EngineSettings = EngineSettings()
+    raw: dict[str, Any] = field(default_factory=dict, repr=False)
+
+    @property
+    def base_dir(self) -> Path:
+        return self.config_path.parent
+
+    def resolve(self, path: str | Path) -> Path:
+        p = Path(path).expanduser()
+        return p if p.is_absolute() else (self.base_dir / p)
+
+    @property
+    def workspace_dir(self) -> Path:
+        return self.resolve(self.workspace.path)
+
+
+_SECTIONS = {
+    "economics": EconomicsSettings,
+    "windows": WindowSettings,
+    "campaign": CampaignSettings,
+    "timing": TimingSettings,
+    "report": ReportSettings,
+    "workspace": WorkspaceSettings,
+    "engine": EngineSettings,
+}
+_TOP_KEYS = ("tables", *_SECTIONS)
+_TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning")
+_MEMORY = re.compile(r"^\s*\d+(\.\d+)?\s*(B|KB|MB|GB|TB|KiB|MiB|GiB|TiB)\s*$", re.I)
+
+
+def _suggest(key: str, valid: list[str] | tuple[str, ...]) -> str:
+    close = difflib.get_close_matches(key, list(valid), n=1, cutoff=0.5)
+    if close:
+        return f"did you mean '{close[0]}'?"
+    return "valid keys: " + ", ".join(sorted(valid))
+
+
+def _unknown(path: Path, where: str, key: str, valid) -> ConfigError:
+    return ConfigError(f"{path}: unknown key '{where}{key}'; {_suggest(key, valid)}")
+
+
+def _expect(path: Path, key: str, value: Any, kind: type | tuple[type, ...], what: str) -> Any:
+    if isinstance(value, bool) and kind in (int, float, (int, float)):
+        raise ConfigError(f"{path}: key '{key}' must be {what}, found {value!r}")
+    if not isinstance(value, kind):
+        raise ConfigError(f"{path}: key '{key}' must be {what}, found {value!r}")
+    return value
+
+
+def guess_format(path: str) -> str:
+    lower = path.lower()
+    if lower.endswith((".parquet", ".pq")) or "parquet" in lower.rsplit("/", 1)[-1]:
+        return "parquet"
+    if lower.endswith((".duckdb", ".db")):
+        return "duckdb"
+    if lower.endswith((".csv", ".csv.gz", ".tsv", ".tsv.gz", ".txt", ".txt.gz")):
+        return "csv"
+    raise ValueError(path)
+
+
+def _parse_table(path: Path, name: str, body: Any) -> TableSettings:
+    where = f"tables.{name}"
+    if name not in INPUT_TABLES:
+        raise _unknown(path, "tables.", name, tuple(INPUT_TABLES))
+    _expect(path, where, body, dict, "a table of settings (path = ..., columns = {...})")
+    for key in body:
+        if key not in _TABLE_KEYS:
+            raise _unknown(path, where + ".", key, _TABLE_KEYS)
+    if "path" not in body:
+        raise ConfigError(f"{path}: key '{where}.path' is missing; say where the {name} files are, e.g. path = \"export/{name}.parquet\"")
+    file_path = _expect(path, f"{where}.path", body["path"], str, "a file path or glob (text)")
+    fmt = body.get("format")
+    if fmt is None:
+        try:
+            fmt = guess_format(file_path)
+        except ValueError:
+            raise ConfigError(
+                f"{path}: cannot tell the format of '{where}.path' = {file_path!r} from its name; "
+                f"add {where}.format = one of {', '.join(FORMATS)}"
+            ) from None
+    elif fmt not in FORMATS:
+        raise ConfigError(f"{path}: key '{where}.format' must be one of {', '.join(FORMATS)}, found {fmt!r}")
+    contract = INPUT_TABLES[name]
+    names = [c.name for c in contract.columns]
+    columns = _expect(path, f"{where}.columns", body.get("columns", {}), dict, "a table of contract_name = \"export column\"")
+    for key, value in columns.items():
+        if key not in names and not contract.extra_columns:
+            raise _unknown(path, f"{where}.columns.", key, names)
+        _expect(path, f"{where}.columns.{key}", value, str, "the export's column name (text)")
+    values = _expect(path, f"{where}.values", body.get("values", {}), dict, "a table per column of contract value = \"export value\"")
+    for column, mapping in values.items():
+        allowed = contract.allowed_values.get(column)
+        if allowed is None:
+            raise _unknown(path, f"{where}.values.", column, tuple(contract.allowed_values) or ("(no mappable columns)",))
+        _expect(path, f"{where}.values.{column}", mapping, dict, f"a table of {' / '.join(allowed)} = \"export value\"")
+        for key, value in mapping.items():
+            if key not in allowed:
+                raise _unknown(path, f"{where}.values.{column}.", key, allowed)
+            _expect(path, f"{where}.values.{column}.{key}", value, str, "the export's value (text)")
+    formats = _expect(path, f"{where}.formats", body.get("formats", {}), dict, "a table of column = \"strptime format\"")
+    timestamp_columns = [c.name for c in contract.columns if c.type == "TIMESTAMP"]
+    for key, value in formats.items():
+        if key not in timestamp_columns:
+            raise _unknown(path, f"{where}.formats.", key, timestamp_columns)
+        _expect(path, f"{where}.formats.{key}", value, str, "a strptime format such as \"%Y%m%d\"")
+    delimiter = body.get("delimiter")
+    if delimiter is not None:
+        _expect(path, f"{where}.delimiter", delimiter, str, "a one-character text such as \";\"")
+    header = _expect(path, f"{where}.header", body.get("header", True), bool, "true or false")
+    table = body.get("table")
+    if fmt == "duckdb" and not table:
+        raise ConfigError(f"{path}: key '{where}.table' is missing; with format = \"duckdb\" name the table inside {file_path!r}")
+    hive = body.get("hive_partitioning")
+    if hive is not None:
+        _expect(path, f"{where}.hive_partitioning", hive, bool, "true or false")
+    return TableSettings(
+        name=name, path=file_path, format=fmt, columns=dict(columns),
+        values={k: dict(v) for k, v in values.items()}, formats=dict(formats),
+        delimiter=delimiter, header=header, table=table, hive_partitioning=hive,
+    )
+
+
+def _parse_section(path: Path, name: str, body: Any):
+    cls = _SECTIONS[name]
+    _expect(path, name, body, dict, "a table of settings")
+    valid = [f.name for f in fields(cls)]
+    kwargs: dict[str, Any] = {}
+    for key, value in body.items():
+        if key not in valid:
+            raise _unknown(path, f"{name}.", key, valid)
+        default = getattr(cls(), key)
+        full = f"{name}.{key}"
+        if key in ("path", "temp_directory"):
+            kwargs[key] = Path(_expect(path, full, value, str, "a folder path (text)"))
+        elif key == "memory_limit":
+            _expect(path, full, value, str, "a size such as \"4GB\"")
+            if not _MEMORY.match(value):
+                raise ConfigError(f"{path}: key '{full}' must be a size such as \"4GB\" or \"512MB\", found {value!r}")
+            kwargs[key] = value.strip()
+        elif key == "holdout_share_by_promotion":
+            _expect(path, full, value, dict, "a table of promotion_id = share")
+            for pid, share in value.items():
+                _share(path, f"{full}.{pid}", share)
+            kwargs[key] = {str(k): float(v) for k, v in value.items()}
+        elif key in ("holdout_share", "untargeted_share", "margin_rate"):
+            kwargs[key] = _share(path, full, value)
+        elif key == "alpha":
+            a = _expect(path, full, value, (int, float), "a significance level between 0 and 1, e.g. 0.05")
+            if not 0 < a < 1:
+                raise ConfigError(f"{path}: key '{full}' must be between 0 and 1, found {value!r}")
+            kwargs[key] = float(a)
+        elif isinstance(default, int) or key == "threads":
+            v = _expect(path, full, value, int, "a whole number")
+            if v < 0 or (v == 0 and key not in ("seed",)):
+                raise ConfigError(f"{path}: key '{full}' must be a positive whole number, found {value!r}")
+            kwargs[key] = v
+        else:
+            kwargs[key] = _expect(path, full, value, str, "text")
+    return cls(**kwargs)
+
+
+def _share(path: Path, key: str, value: Any) -> float:
+    v = _expect(path, key, value, (int, float), "a share between 0 and 1, e.g. 0.2")
+    if not 0 <= v <= 1:
+        raise ConfigError(f"{path}: key '{key}' must be a share between 0 and 1, found {value!r}")
+    return float(v)
+
+
+def parse(data: dict[str, Any], config_path: Path) -> Settings:
+    """Build typed settings from the parsed TOML of ``config_path``."""
+    path = config_path
+    for key in data:
+        if key not in _TOP_KEYS:
+            raise _unknown(path, "", key, _TOP_KEYS)
+    tables_body = data.get("tables")
+    if not isinstance(tables_body, dict) or not tables_body:
+        raise ConfigError(
+            f"{path}: no [tables.*] sections; name at least the transactions, promotions and "
+            f"assignments files, e.g. [tables.transactions] path = \"export/order_lines/*.parquet\""
+        )
+    tables = {name: _parse_table(path, name, body) for name, body in tables_body.items()}
+    for required in ("transactions", "promotions", "assignments"):
+        if required not in tables:
+            raise ConfigError(f"{path}: section [tables.{required}] is missing; it is required (give its path)")
+    sections = {name: _parse_section(path, name, data[name]) for name in _SECTIONS if name in data}
+    return Settings(config_path=path, tables=tables, raw=data, **sections)
+
+
+def load(config_path: str | Path) -> Settings:
+    """Read and check a ``liftlag.toml``.
+
+    Parameters
+    ----------
+    config_path : str or Path
+        The config file.
+
+    Raises
+    ------
+    ConfigError
+        When the file is missing, is not TOML, or any key is unknown or has the wrong type.
+    """
+    path = Path(config_path).expanduser().resolve()
+    if not path.exists():
+        raise ConfigError(f"config file {path} does not exist; write one with `liftlag init EXPORT_DIR`")
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"{path}: not valid TOML: {exc}") from None
+    return parse(data, path)
