@@ -263,7 +263,10 @@ def _problems(summary: pd.DataFrame, con) -> list[str]:
         if not row.configured:
             continue
         if row.rows_read == 0:
-            problems.append(f"table {row.table}: no rows read; the export is empty")
+            # A header-only promotions or assignments file is a shop without campaigns in the
+            # export: usable (for the timing and dependence panels). No order lines is not.
+            if row.table == "transactions":
+                problems.append(f"table {row.table}: no rows read; the export is empty")
         elif row.accepted == 0 and not INPUT_TABLES[row.table].optional:
             problems.append(f"table {row.table}: all {row.rows_read} rows rejected; see the rejects summary")
     inverted = con.execute(

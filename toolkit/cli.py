@@ -18,8 +18,8 @@ from rich.table import Table
 from . import __version__
 from .errors import ConfigError, DataWarning, LiftlagError, StatisticalWarning
 
-console = Console(stderr=False, highlight=False)
-err_console = Console(stderr=True, highlight=False)
+console = Console(stderr=False, highlight=False, soft_wrap=True)
+err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -191,7 +191,10 @@ COMMANDS = {"check": cmd_check, "build": cmd_build, "sql": cmd_sql, "init": cmd_
 
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
-    args = parser.parse_args(argv)
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # --help, --version, or an argument error (exit 2)
+        return int(exc.code or 0)
     if not args.command:
         parser.print_help()
         return 2

@@ -1,0 +1,247 @@
+"""Generate the demo export from a seed, or reuse one generated before with the same settings."""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import ConfigError
+from .calendar import build_calendar
+from .export import (
+    CONFIG_NAME,
+    clear_previous,
+    write_config,
+    write_json,
+    write_tables,
+    write_transactions,
+    write_truth,
+)
+from .lines import make_lines
+from .population import make_customers, make_products
+from .scenario import Scenario
+from .simulate import simulate
+from .truth import build_truth
+
+GENERATOR_VERSION = 1
+DEFAULT_SEED = 20261201
+DEFAULT_CUSTOMERS = 4000
+GENERATION_FILE = "generation.json"
+
+
+def generate(
+    out_dir: str | Path,
+    *,
+    seed: int = DEFAULT_SEED,
+    customers: int = DEFAULT_CUSTOMERS,
+    effects: str = "all",
+    scenario: Scenario | None = None,
+) -> Path:
+    """Generate the Fernwick Home & Garden demo export and its known truth.
+
+    Parameters
+    ----------
+    out_dir : str or Path
+        Folder to write into (created if missing). Files of an earlier generation there are
+        replaced; nothing else in the folder is touched.
+    seed : int, default=20261201
+        Seed of numpy's Generator; the same seed and settings give byte-identical files.
+    customers : int, default=4000
+        Number of customers.
+    effects : {"all", "uplift_only", "none"}, default="all"
+        Which mechanisms are on (see :data:`toolkit.demo.scenario.EFFECTS`).
+    scenario : Scenario, optional
+        Full parameters; overrides ``effects`` when given.
+
+    Returns
+    -------
+    Path
+        The ``liftlag.toml`` of the export.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from toolkit.demo import generate
+    >>> config = generate(tempfile.mkdtemp(), customers=300)
+    >>> config.name
+    'liftlag.toml'
+    """
+    if not isinstance(customers, int) or customers < 50:
+        raise ConfigError(f"demo customers must be a whole number of at least 50, found {customers!r}")
+    if not isinstance(seed, int) or seed < 0:
+        raise ConfigError(f"demo seed must be a non-negative whole number, found {seed!r}")
+    scenario = scenario if scenario is not None else Scenario.for_effects(effects)
+    scenario.validate()
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+
+    streams = [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(6)]
+    calendar_rng, customer_rng, product_rng, purchase_rng, assignment_rng, line_rng = streams
+    calendar = build_calendar(scenario, calendar_rng)
+    population = make_customers(scenario, customers, customer_rng)
+    products = make_products(scenario, product_rng)
+    simulation = simulate(scenario, calendar, population, purchase_rng=purchase_rng, assignment_rng=assignment_rng)
+    lines = make_lines(scenario, calendar, population, products, simulation, line_rng)
+    campaign_truth, broadcast_truth, uplift_table = build_truth(scenario, calendar, population, simulation)
+
+    clear_previous(out)
+    write_transactions(out, lines, calendar, population, products)
+    write_tables(out, scenario, calendar, population, products, simulation)
+    config = write_config(out, scenario)
+    truth = {
+        "description": (
+            "Known truth of the Fernwick Home & Garden demo (invented retailer). Effects are exact "
+            "expectations under the generating process, conditional on each assigned customer's "
+            "state at the campaign start, averaged over the campaign's assigned customers."
+        ),
+        "generator_version": GENERATOR_VERSION,
+        "seed": seed,
+        "customers": customers,
+        "effects": effects if scenario == Scenario.for_effects(effects) else "custom",
+        "holdout_share": scenario.holdout_share,
+        "scenario": scenario.to_dict(),
+        "mechanisms": _mechanisms(scenario),
+        "campaigns": campaign_truth,
+        "broadcasts": broadcast_truth,
+        "realised": _realised(population, products, simulation, lines, campaign_truth),
+    }
+    write_truth(out, truth, uplift_table)
+    record = _record(seed, customers, truth["effects"], scenario)
+    record["files"] = _file_hashes(out)
+    write_json(out / GENERATION_FILE, record)
+    return config
+
+
+def ensure_demo_data(
+    out_dir: str | Path,
+    *,
+    seed: int = DEFAULT_SEED,
+    customers: int = DEFAULT_CUSTOMERS,
+    effects: str = "all",
+) -> Path:
+    """Return the config of a demo export in ``out_dir``, generating it only when needed.
+
+    An existing generation is reused when its ``generation.json`` records the same generator
+    version, seed, customer count, effects and scenario parameters, and every file it lists is
+    still there unchanged; otherwise the export is generated afresh.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from toolkit.demo import ensure_demo_data
+    >>> folder = tempfile.mkdtemp()
+    >>> ensure_demo_data(folder, customers=300) == ensure_demo_data(folder, customers=300)
+    True
+    """
+    out = Path(out_dir)
+    scenario = Scenario.for_effects(effects)
+    if is_current(out, seed=seed, customers=customers, effects=effects, scenario=scenario):
+        return out / CONFIG_NAME
+    return generate(out, seed=seed, customers=customers, effects=effects)
+
+
+def is_current(out_dir: Path, *, seed: int, customers: int, effects: str, scenario: Scenario) -> bool:
+    """Whether ``out_dir`` holds an unchanged generation with exactly these settings."""
+    try:
+        recorded = json.loads((out_dir / GENERATION_FILE).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    expected = _record(seed, customers, effects, scenario)
+    if any(recorded.get(key) != value for key, value in expected.items()):
+        return False
+    files = recorded.get("files")
+    if not isinstance(files, dict) or CONFIG_NAME not in files:
+        return False
+    current = _file_hashes(out_dir)
+    return current == files
+
+
+def _record(seed: int, customers: int, effects: str, scenario: Scenario) -> dict:
+    return {
+        "generator_version": GENERATOR_VERSION,
+        "seed": seed,
+        "customers": customers,
+        "effects": effects,
+        "scenario_fingerprint": scenario.fingerprint(),
+    }
+
+
+def _file_hashes(out_dir: Path) -> dict[str, str]:
+    """sha256 of every generated file, by path relative to ``out_dir``."""
+    names = sorted(p for p in out_dir.glob("transactions/month=*/part-0.parquet"))
+    names += [out_dir / n for n in ("promotions.csv", "assignments.csv", "customers.csv", "products.csv",
+                                     CONFIG_NAME, "truth.json", "truth_uplift.parquet")]
+    hashes = {}
+    for path in names:
+        if path.is_file():
+            hashes[path.relative_to(out_dir).as_posix()] = hashlib.sha256(path.read_bytes()).hexdigest()
+    return hashes
+
+
+def _mechanisms(scenario: Scenario) -> dict:
+    return {
+        "uplift": {
+            "active": scenario.has_uplift,
+            "acts_on": "purchase hazard of treatment customers on each day of the campaign window",
+            "rule": (
+                "coupon_hazard_ratio = uplift_base_hr x uplift_garden_hr (if household_garden = 1) "
+                "x uplift_recent_infrequent_hr (if recency_days <= recent_days and 1 <= frequency <= "
+                "infrequent_max_orders); 1 for sure things (frequency >= sure_thing_min_orders); "
+                "do_not_disturb_hr for signup_channel = do_not_disturb_channel (takes precedence). "
+                "recency_days and frequency are read from the exported orders in the pre_period_days "
+                "before the campaign start."
+            ),
+            "uplift_base_hr": scenario.uplift_base_hr,
+            "uplift_garden_hr": scenario.uplift_garden_hr,
+            "uplift_recent_infrequent_hr": scenario.uplift_recent_infrequent_hr,
+            "recent_days": scenario.recent_days,
+            "infrequent_max_orders": scenario.infrequent_max_orders,
+            "sure_thing_min_orders": scenario.sure_thing_min_orders,
+            "do_not_disturb_channel": scenario.do_not_disturb_channel,
+            "do_not_disturb_hr": scenario.do_not_disturb_hr,
+        },
+        "post_promotion_dip": {
+            "active": scenario.has_dip,
+            "acts_on": "purchase hazard on the dip_days days after each order placed with a targeted coupon",
+            "post_promotion_dip_hr": scenario.post_promotion_dip_hr,
+            "dip_days": scenario.dip_days,
+        },
+        "anticipation": {
+            "active": scenario.has_anticipation,
+            "acts_on": (
+                "full-price purchase hazard on the anticipation_days days before each scheduled campaign "
+                "start, for customers with at least anticipation_min_coupons treatment coupons from "
+                "campaigns already started"
+            ),
+            "anticipation_hr": scenario.anticipation_hr,
+            "anticipation_days": scenario.anticipation_days,
+            "anticipation_min_coupons": scenario.anticipation_min_coupons,
+        },
+        "broadcast": {
+            "active": scenario.broadcast_hr != 1.0,
+            "acts_on": "every customer's purchase hazard on each day of the sale (no dip follows a sale order)",
+            "broadcast_hr": scenario.broadcast_hr,
+        },
+    }
+
+
+def _realised(population, products, simulation, lines, campaign_truth) -> dict:
+    """Counts of what was generated (descriptive, not effects)."""
+    buyers = np.unique(simulation.order_customer)
+    return {
+        "customers": int(len(population)),
+        "customers_with_orders": int(len(buyers)),
+        "products": int(len(products)),
+        "orders": int(lines.orders),
+        "lines": int(len(lines.order_number)),
+        "return_lines": int(lines.is_return.sum()),
+        "coupon_orders": int(np.isin(simulation.order_promotion, np.arange(len(campaign_truth))).sum()),
+        "broadcast_orders": int((simulation.order_promotion >= len(campaign_truth)).sum()),
+        "targeted_campaigns": len(campaign_truth),
+        "assignments": int(sum(c["assigned"] for c in campaign_truth)),
+        "holdout_share_realised": round(
+            sum(c["holdout"] for c in campaign_truth) / max(sum(c["assigned"] for c in campaign_truth), 1), 6
+        ),
+    }
