@@ -66,6 +66,34 @@ class Candidate:
     path: str  # as written in the config (relative to the config's folder)
     format: str
     columns: list[tuple[str, str]]  # (name, duckdb type)
+    files: list[str] | None = None  # absolute paths, for sampling values
+
+
+ARM_WORDS = {
+    "treatment": ("treatment", "treated", "treat", "t", "test", "target", "targeted", "1", "true", "yes", "coupon"),
+    "holdout": ("holdout", "hold", "h", "control", "c", "0", "false", "no", "ctrl", "held_out"),
+}
+
+
+def guess_arm_values(values: list[str]) -> dict[str, str]:
+    """contract arm -> export value, for exports that code the arms (T/H, test/control, 1/0)."""
+    out = {}
+    for arm, words in ARM_WORDS.items():
+        for v in values:
+            if v is not None and str(v).strip().lower() in words and str(v) != arm:
+                out[arm] = str(v)
+                break
+    return out
+
+
+def sample_values(cand: Candidate, column: str, limit: int = 20) -> list[str]:
+    con = duckdb.connect()
+    reader = "read_parquet(?, union_by_name = true)" if cand.format == "parquet" else "read_csv(?, all_varchar = true)"
+    sql = f'SELECT DISTINCT CAST("{column.replace(chr(34), chr(34) * 2)}" AS VARCHAR) FROM {reader} LIMIT {int(limit)}'
+    try:
+        return [r[0] for r in con.execute(sql, [cand.files]).fetchall()]
+    except duckdb.Error:
+        return []
 
 
 def _family(duck_type: str) -> str:
@@ -93,7 +121,7 @@ def find_candidates(export_dir: Path) -> list[Candidate]:
         elif f.name.endswith((".csv", ".csv.gz", ".tsv", ".tsv.gz")):
             rel = f.relative_to(export_dir).as_posix()
             cols = _describe(con, "SELECT * FROM read_csv(?, sample_size = 2048)", [str(f)], f)
-            candidates.append(Candidate(rel, "csv", cols))
+            candidates.append(Candidate(rel, "csv", cols, [str(f)]))
     for top, files in parquet_dirs.items():
         if top.is_file():
             rel = top.relative_to(export_dir).as_posix()
@@ -101,7 +129,7 @@ def find_candidates(export_dir: Path) -> list[Candidate]:
         else:
             rel = top.relative_to(export_dir).as_posix() + "/**/*.parquet"
             cols = _describe(con, "SELECT * FROM read_parquet(?, union_by_name = true)", [[str(p) for p in files]], top)
-        candidates.append(Candidate(rel, "parquet", cols))
+        candidates.append(Candidate(rel, "parquet", cols, [str(p) for p in files] if not top.is_file() else [str(top)]))
     if not candidates:
         raise DataError(f"{export_dir}: no Parquet or CSV files found (looked for *.parquet, *.csv, *.csv.gz)")
     return candidates
@@ -191,8 +219,13 @@ def render_config(chosen: dict[str, Candidate]) -> tuple[str, list[str]]:
             if r not in guessed:
                 lines.append(f'# {r} = "?"  -- required column not found: name the export column')
                 report.append(f"  {r}: NOT FOUND (required)")
-        if table == "assignments":
-            lines.append("# [tables.assignments.values.arm]  -- if arms are coded, e.g. treatment = \"T\", holdout = \"H\"")
+        if table == "assignments" and "arm" in guessed:
+            coded = guess_arm_values(sample_values(cand, guessed["arm"][0]))
+            if coded:
+                lines.append("[tables.assignments.values.arm]")
+                for arm, value in coded.items():
+                    lines.append(f'{arm} = "{value}"  # guessed from the values found')
+                    report.append(f"  arm {arm} <- {value!r} (guessed)")
         lines.append("")
     lines += ["[economics]", "margin_rate = 0.35  # guessed: a placeholder, set your own margin rate",
               'currency = "EUR"  # guessed', "", "[windows]", "pre_period_days = 365", "after_days = 28", "",

@@ -46,6 +46,7 @@ coupon_history AS (
             PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
             ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
         ) AS last_coupon_at
+    FROM events
 ),
 
 sequenced AS (

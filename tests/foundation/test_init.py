@@ -1,0 +1,30 @@
+"""`liftlag init` guesses the tables and the column mapping of an export in its own names."""
+
+from __future__ import annotations
+
+import tomllib
+
+from toolkit import cli
+from tests.conftest import write_export
+
+
+def test_init_guesses_renamed_columns_and_coded_arms_and_the_result_checks_clean(tmp_path, capsys):
+    cfg = write_export(tmp_path / "export")
+    cfg.unlink()
+    tx = cfg.parent / "transactions.csv"
+    header, rest = tx.read_text().split("\n", 1)
+    renamed = header.replace("order_id", "invoice_no").replace("customer_id", "client_ref") \
+        .replace("ordered_at", "created").replace("quantity", "qty").replace("net_amount", "paid")
+    (cfg.parent / "order_lines.csv").write_text(renamed + "\n" + rest)
+    tx.unlink()
+    assert cli.main(["init", str(cfg.parent)]) == 0
+    out = capsys.readouterr().out
+    assert "order_id <- invoice_no (guessed" in out and "arm treatment <- 'T'" in out
+    written = tomllib.loads(cfg.read_text())
+    columns = written["tables"]["transactions"]["columns"]
+    assert columns == {"order_id": "invoice_no", "customer_id": "client_ref", "ordered_at": "created",
+                       "quantity": "qty", "net_amount": "paid"}
+    assert written["tables"]["assignments"]["values"]["arm"] == {"treatment": "T", "holdout": "H"}
+    assert "# guessed" in cfg.read_text()
+    assert cli.main(["check", "-c", str(cfg)]) == 0
+    assert cli.main(["init", str(cfg.parent)]) == 2  # will not overwrite without --force
