@@ -23,15 +23,14 @@ SHIPPED = Path(__file__).resolve().parent.parent / "demo_data"
 def demo_export(out: Path, seed: int | None, customers: int | None) -> Path:
     """The config path of a demo export matching ``seed`` and ``customers`` (generated if needed)."""
     from . import demo
+    from .demo.generate import is_current
 
-    kwargs = {}
-    if seed is not None:
-        kwargs["seed"] = seed
-    if customers is not None:
-        kwargs["customers"] = customers
-    if SHIPPED.is_dir() and (SHIPPED / "liftlag.toml").exists() and demo.matches(SHIPPED, **kwargs):
+    seed = demo.DEFAULT_SEED if seed is None else seed
+    customers = demo.DEFAULT_CUSTOMERS if customers is None else customers
+    scenario = demo.Scenario.for_effects("all")
+    if is_current(SHIPPED, seed=seed, customers=customers, effects="all", scenario=scenario):
         return SHIPPED / "liftlag.toml"
-    return demo.ensure_demo_data(out / "export", **kwargs)
+    return demo.ensure_demo_data(out / "export", seed=seed, customers=customers)
 
 
 def run_demo(out: Path, seed: int | None = None, customers: int | None = None, console: Console | None = None) -> int:
