@@ -123,3 +123,10 @@ def test_messy_export_accepted_plus_rejected_equals_read(tmp_path):
     # the first rule in the run order names the reason of a row that trips several
     assert reasons == ["duplicate_row", "duplicate_row", "missing_required", "missing_required", "unparseable_value"]
     assert result.rejects["rows"].sum() == row.rejected
+
+
+def test_a_returned_line_after_the_promotion_is_not_outside_its_dates(tmp_path):
+    """A return carries the promotion of the purchase it undoes (common practice, no source)."""
+    late_return = ["o2", "c1", "2026-03-15 10:00:00", "p1", "-1", "-8", "-10", "-2", "PA"]
+    _, rejected, warned = run(tmp_path, transactions=TINY_TRANSACTIONS + [late_return])
+    assert rejected == [] and warned == []
