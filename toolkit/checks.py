@@ -112,20 +112,32 @@ def _accepted_select(con, name: str) -> str:
 
 
 def _typed_attribute(con, table: str, column: str) -> str:
-    """Customer attributes arrive as text from CSV: give each the narrowest type all its values take."""
+    """Customer attributes arrive as text from CSV: give each the narrowest type all its values take.
+
+    true/false text is BOOLEAN, whole numbers BIGINT, other finite numbers DOUBLE, dates and times
+    TIMESTAMP; anything else stays text. (0/1 stays a number: it may be a count.)
+    """
     col = q(column)
-    dtype = scalar(con, f"SELECT typeof({col}) FROM {q('staged_' + table)} LIMIT 1")
-    if dtype != "VARCHAR":
+    if scalar(con, f"SELECT typeof({col}) FROM {q('staged_' + table)} LIMIT 1") != "VARCHAR":
         return col
-    for target in ("BOOLEAN", "BIGINT", "DOUBLE"):
-        bad = scalar(
-            con,
-            f"SELECT count(*) FROM {q('staged_' + table)} WHERE {col} IS NOT NULL AND trim({col}) <> '' "
-            f"AND TRY_CAST({col} AS {target}) IS NULL",
-        )
+    value = f"NULLIF(trim({col}), '')"
+    tests = (
+        ("BOOLEAN", f"lower({value}) IN ('true', 'false')"),
+        ("BIGINT", f"regexp_full_match({value}, '[+-]?[0-9]+') AND TRY_CAST({value} AS BIGINT) IS NOT NULL"),
+        ("DOUBLE", f"isfinite(TRY_CAST({value} AS DOUBLE))"),
+        ("TIMESTAMP", f"TRY_CAST({value} AS TIMESTAMP) IS NOT NULL"),
+    )
+    for target, fits in tests:
+        bad = scalar(con, f"SELECT count(*) FROM {q('staged_' + table)} WHERE {value} IS NOT NULL AND NOT coalesce({fits}, false)")
         if bad == 0:
-            return f"TRY_CAST(NULLIF(trim({col}), '') AS {target}) AS {col}"
+            return f"TRY_CAST({value} AS {target}) AS {col}"
     return col
+
+
+# Input tables kept in checked.duckdb. Order lines are not copied there: writing tens of
+# millions of lines costs more than reading the export again, so `build` re-reads them through
+# the source layer in the same pass that builds the panels.
+PERSISTED = tuple(name for name in INPUT_TABLES if name != "transactions")
 
 
 def run(settings: Settings, progress=None) -> CheckResult:
@@ -143,67 +155,81 @@ def run(settings: Settings, progress=None) -> CheckResult:
     DataError
         A file is missing, empty or unreadable, or a required column is absent.
     """
+    con = engine_connect(settings)
+    try:
+        return validate(con, settings, progress)
+    finally:
+        con.close()
+
+
+def validate(con, settings: Settings, progress=None) -> CheckResult:
+    """Stage the export on ``con``, run every rule, write ``checked.duckdb`` and the state.
+
+    Leaves on ``con`` the temporary views ``accepted_<table>`` (accepted rows, typed, with the
+    contract's derivations) that the panels are built from.
+    """
     started = time.perf_counter()
     say = progress or (lambda text: None)
     fp, _ = input_fingerprint(settings)
-    con = engine_connect(settings)
-    try:
-        infos = sources.register(con, settings, progress=say)
-        con.execute(sources.staged_union_sql())
-        con.execute("SET VARIABLE allowed_arm = ?", [list(ARMS)])
-        con.execute("SET VARIABLE allowed_mechanic = ?", [list(MECHANICS)])
-        con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
-        con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
-        con.execute(
-            "CREATE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
-            "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
-        )
-        promotions_ready = False
-        for order, rule in enumerate(RULES):
-            if rule.after_promotions and not promotions_ready:
-                con.execute(
-                    "CREATE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions AS s "
-                    "ANTI JOIN (SELECT _row_id FROM check_hits WHERE table_name = 'promotions' "
-                    "AND severity = 'reject') AS h ON s._row_id = h._row_id"
-                )
-                promotions_ready = True
-            say(f"rule {rule.name}")
+    infos = sources.register(con, settings, progress=say)
+    con.execute(sources.staged_union_sql())
+    con.execute("SET VARIABLE allowed_arm = ?", [list(ARMS)])
+    con.execute("SET VARIABLE allowed_mechanic = ?", [list(MECHANICS)])
+    con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
+    con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
+    con.execute(
+        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
+        "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
+    )
+    promotions_ready = False
+    for order, rule in enumerate(RULES):
+        if rule.after_promotions and not promotions_ready:
             con.execute(
-                f"INSERT INTO check_hits SELECT table_name, _row_id, ?, ?, ?, detail FROM ({rule.sql()})",
-                [rule.name, rule.severity, order],
+                "CREATE OR REPLACE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions AS s "
+                "ANTI JOIN (SELECT _row_id FROM check_hits WHERE table_name = 'promotions' "
+                "AND severity = 'reject') AS h ON s._row_id = h._row_id"
             )
+            promotions_ready = True
+        say(f"rule {rule.name}")
         con.execute(
-            "CREATE TEMP TABLE rejected AS SELECT table_name, _row_id, "
-            "arg_min(rule, rule_order) AS reason, arg_min(detail, rule_order) AS detail, "
-            "string_agg(rule, ', ' ORDER BY rule_order) AS all_reasons "
-            "FROM check_hits WHERE severity = 'reject' GROUP BY table_name, _row_id"
+            f"INSERT INTO check_hits SELECT table_name, _row_id, ?, ?, ?, detail FROM ({rule.sql()})",
+            [rule.name, rule.severity, order],
         )
-        # Warnings count only rows that are kept.
-        con.execute(
-            "CREATE TEMP TABLE warned AS SELECT h.* FROM check_hits AS h "
-            "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
-            "WHERE h.severity = 'warn'"
-        )
-        summary = _summary(con, infos)
-        with workspace.atomic_database(settings, workspace.CHECKED) as target:
-            say("writing accepted rows")
-            con.execute("ATTACH ? AS out", [str(target)])
-            for name in INPUT_TABLES:
-                con.execute(f"CREATE TABLE out.{q(name)} AS {_accepted_select(con, name)}")
-            _write_rejects(con)
-            con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df", )
-            con.execute("DETACH out")
-        problems = _problems(summary, con)
-        rejects = con.execute("SELECT * FROM rejects_summary_df").df()
-        warnings = con.execute(
-            "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
-        ).df()
-    finally:
-        con.close()
+    con.execute(
+        "CREATE OR REPLACE TEMP TABLE rejected AS SELECT table_name, _row_id, "
+        "arg_min(rule, rule_order) AS reason, arg_min(detail, rule_order) AS detail, "
+        "string_agg(rule, ', ' ORDER BY rule_order) AS all_reasons "
+        "FROM check_hits WHERE severity = 'reject' GROUP BY table_name, _row_id"
+    )
+    # Warnings count only rows that are kept.
+    con.execute(
+        "CREATE OR REPLACE TEMP TABLE warned AS SELECT h.* FROM check_hits AS h "
+        "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
+        "WHERE h.severity = 'warn'"
+    )
+    for name in INPUT_TABLES:
+        con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name)}")
+    summary = _summary(con, infos)
+    problems = _problems(summary, con)
+    with workspace.atomic_database(settings, workspace.CHECKED) as target:
+        say("writing checked tables")
+        con.execute("ATTACH ? AS out", [str(target)])
+        for name in PERSISTED:
+            con.execute(f"CREATE TABLE out.{q(name)} AS SELECT * FROM {q('accepted_' + name)}")
+        _write_rejects(con)
+        con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df")
+        con.execute("DETACH out")
+    rejects = con.execute("SELECT * FROM rejects_summary_df").df()
+    warnings = con.execute(
+        "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
+    ).df()
     state = workspace.read_state(settings)
     state["check"] = {"fingerprint": fp, "usable": not problems, "problems": problems,
                       "summary": summary.to_dict(orient="records")}
-    state.pop("build", None)
+    if state.get("build", {}).get("check_fingerprint") != fp:
+        # Panels built from other inputs must not be served beside this check.
+        state.pop("build", None)
+        workspace.path(settings, workspace.PANELS).unlink(missing_ok=True)
     workspace.write_state(settings, state)
     return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started)
 

@@ -13,6 +13,7 @@ import warnings
 from pathlib import Path
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from . import __version__
@@ -25,7 +26,7 @@ err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # argparse's own errors exit 2, as ours do
         self.print_usage(sys.stderr)
-        err_console.print(f"[bold red]error:[/] {message}")
+        err_console.print(f"[bold red]error:[/] {escape(message)}")
         raise SystemExit(2)
 
 
@@ -87,7 +88,7 @@ def cmd_check(args) -> int:
     if not result.usable:
         err_console.print("[bold red]the export cannot be used as it is:[/]")
         for problem in result.problems:
-            err_console.print(f"  - {problem}")
+            err_console.print(f"  - {escape(problem)}")
         return 3
     return 0
 
@@ -100,21 +101,21 @@ def print_check(result) -> None:
         if not row.configured:
             table.add_row(row.table, "not configured", "", "", "")
             continue
-        table.add_row(row.table, f"{row.rows_read:,}", f"{row.accepted:,}", f"{row.rejected:,}", f"{row.warnings:,}")
+        table.add_row(escape(row.table), f"{row.rows_read:,}", f"{row.accepted:,}", f"{row.rejected:,}", f"{row.warnings:,}")
     console.print(table)
     if len(result.rejects):
         rej = Table(title="rejected rows by reason (details in the workspace: checked.duckdb, rejected_rows)")
         for col in ("table", "reason", "rows"):
             rej.add_column(col, justify="right" if col == "rows" else "left")
         for row in result.rejects.itertuples(index=False):
-            rej.add_row(row[0], row[1], f"{row[2]:,}")
+            rej.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
         console.print(rej)
     if len(result.warnings):
         warn = Table(title="warnings (rows kept)")
         for col in ("table", "rule", "rows"):
             warn.add_column(col, justify="right" if col == "rows" else "left")
         for row in result.warnings.itertuples(index=False):
-            warn.add_row(row[0], row[1], f"{row[2]:,}")
+            warn.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
         console.print(warn)
 
 
@@ -176,7 +177,7 @@ def cmd_init(args) -> int:
 
     path = write_starter_config(Path(args.export_dir), output=Path(args.output) if args.output else None,
                                 force=args.force, console=console)
-    console.print(f"wrote [bold]{path}[/]; review every line marked 'guessed', then run `liftlag check -c {path}`")
+    console.print(f"wrote [bold]{escape(str(path))}[/]; review every line marked 'guessed', then run `liftlag check -c {escape(str(path))}`")
     return 0
 
 
@@ -205,14 +206,20 @@ def main(argv: list[str] | None = None) -> int:
             code = handler(args)
         for w in caught:
             if issubclass(w.category, (DataWarning, StatisticalWarning)):
-                err_console.print(f"[yellow]warning:[/] {w.message}")
+                err_console.print(f"[yellow]warning:[/] {escape(str(w.message))}")
         return code
     except LiftlagError as exc:
-        err_console.print(f"[bold red]error:[/] {exc}")
+        err_console.print(f"[bold red]error:[/] {escape(str(exc))}")
         return exc.exit_code
     except BrokenPipeError:  # output piped into `head` and the like
         return 0
     except KeyboardInterrupt:
+        err_console.print("interrupted; nothing was left half-written")
+        return 1
+    except RuntimeError as exc:
+        # DuckDB turns Ctrl-C inside a query into an error of its own.
+        if "interrupt" not in str(exc).lower():
+            raise
         err_console.print("interrupted; nothing was left half-written")
         return 1
 

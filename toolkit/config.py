@@ -201,6 +201,14 @@ def _parse_table(path: Path, name: str, body: Any) -> TableSettings:
             if key not in allowed:
                 raise _unknown(path, f"{where}.values.{column}.", key, allowed)
             _expect(path, f"{where}.values.{column}.{key}", value, str, "the export's value (text)")
+        codes = list(mapping.values())
+        repeated = sorted({v for v in codes if codes.count(v) > 1})
+        if repeated:
+            keys = [k for k, v in mapping.items() if v == repeated[0]]
+            raise ConfigError(
+                f"{path}: keys '{where}.values.{column}.{keys[0]}' and '.{keys[1]}' both map the export value "
+                f"{repeated[0]!r}; each {column} value needs its own code"
+            )
     formats = _expect(path, f"{where}.formats", body.get("formats", {}), dict, "a table of column = \"strptime format\"")
     timestamp_columns = [c.name for c in contract.columns if c.type == "TIMESTAMP"]
     for key, value in formats.items():

@@ -30,6 +30,9 @@ class InputTable:
     def required(self) -> tuple[str, ...]:
         return tuple(c.name for c in self.columns if c.required)
 
+    def column_is_required(self, name: str) -> bool:
+        return name in self.required
+
     def column(self, name: str) -> Column:
         for c in self.columns:
             if c.name == name:

@@ -12,6 +12,7 @@ import time
 from pathlib import Path
 
 from rich.console import Console
+from rich.markup import escape
 
 from . import config as config_module
 from .config import WorkspaceSettings
@@ -45,7 +46,7 @@ def run_demo(out: Path, seed: int | None = None, customers: int | None = None, c
     with console.status("preparing the demo export…"):
         config_path = demo_export(out, seed, customers)
     timings["export"] = round(time.perf_counter() - started, 2)
-    console.print(f"demo export: [bold]{config_path.parent}[/] (invented data; see truth.json there)")
+    console.print(f"demo export: [bold]{escape(str(config_path.parent))}[/] (invented data; see truth.json there)")
     settings = config_module.load(config_path)
     settings = dataclasses.replace(settings, workspace=WorkspaceSettings(path=out / ".liftlag"))
     t0 = time.perf_counter()
@@ -79,5 +80,5 @@ def run_demo(out: Path, seed: int | None = None, customers: int | None = None, c
         timings=timings,
         analyses=ran,
     )
-    console.print(f"demo done in {timings['total']:.1f} s; results in [bold]{out}[/]")
+    console.print(f"demo done in {timings['total']:.1f} s; results in [bold]{escape(str(out))}[/]")
     return 0

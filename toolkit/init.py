@@ -248,5 +248,5 @@ def write_starter_config(export_dir: Path, output: Path | None = None, force: bo
     if console is not None:
         console.print("[bold]what liftlag init guessed[/]")
         for line in report:
-            console.print(f"  {line}")
+            console.print(f"  {line}", markup=False)
     return target

@@ -1,10 +1,11 @@
 """Build the panels: ``sql/panels/*.sql``, one table per file, in the order of ``PANEL_ORDER``.
 
-Each file's stem is the table it builds; it reads only the checked inputs and the panels before
-it. Parameters (window lengths, margin rate) are bound as DuckDB variables, never formatted into
-the SQL. The panels are written to ``panels.duckdb.partial`` and moved into place when all are
-built; ``build`` skips the work when the checked inputs, the SQL and the settings it depends on
-are unchanged.
+Each file's stem is the table it builds; it reads only the accepted input rows (under the
+contract's table names) and the panels before it. Parameters (window lengths, margin rate) are
+bound as DuckDB variables, never formatted into the SQL. ``build`` checks the export and builds the
+panels in one pass over the files, writes them to ``panels.duckdb.partial`` and moves that into
+place when all are built; it skips the work when the inputs, the SQL and the settings it depends
+on are unchanged.
 """
 
 from __future__ import annotations
@@ -16,7 +17,7 @@ from pathlib import Path
 
 from . import checks, workspace
 from .config import Settings
-from .contract import PANELS
+from .contract import INPUT_TABLES, PANELS
 from .engine.duckdb import connect as engine_connect
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
@@ -54,7 +55,7 @@ def build_fingerprint(settings: Settings, check_fingerprint: str) -> str:
 
 
 def build(settings: Settings, *, force: bool = False, progress=None) -> BuildResult:
-    """Check the export if needed, then build every panel into ``panels.duckdb``.
+    """Check the export and build every panel into ``panels.duckdb``, in one pass over the files.
 
     Parameters
     ----------
@@ -71,43 +72,44 @@ def build(settings: Settings, *, force: bool = False, progress=None) -> BuildRes
     """
     say = progress or (lambda step, detail="": None)
     check_fp, _ = checks.input_fingerprint(settings)
-    state = workspace.read_state(settings)
-    check_result = None
-    checked_path = workspace.path(settings, workspace.CHECKED)
-    if force or state.get("check", {}).get("fingerprint") != check_fp or not checked_path.exists():
-        check_result = checks.run(settings, progress=lambda text: say("check", text))
-        state = workspace.read_state(settings)
-    if not state.get("check", {}).get("usable", False):
-        problems = state.get("check", {}).get("problems") or ["the last check did not finish"]
-        raise DataError("the export cannot be used as it is:\n  - " + "\n  - ".join(problems))
     fp = build_fingerprint(settings, check_fp)
+    state = workspace.read_state(settings)
     panels_path = workspace.path(settings, workspace.PANELS)
-    if not force and state.get("build", {}).get("fingerprint") == fp and panels_path.exists():
-        return BuildResult(skipped=True, rows=state["build"].get("rows", {}), check=check_result, fingerprint=fp)
+    if (not force and state.get("build", {}).get("fingerprint") == fp and panels_path.exists()
+            and state.get("check", {}).get("fingerprint") == check_fp):
+        return BuildResult(skipped=True, rows=state["build"].get("rows", {}), fingerprint=fp)
     if settings.economics.margin_rate is None and "products" not in settings.tables:
         warnings.warn(
-            f"{settings.config_path}: no products table and no [economics] margin_rate: margins "
+            f"{settings.config_path}: no products table and no economics.margin_rate: margins "
             "(margin_amount, margin after discount) will be empty; set economics.margin_rate",
             DataWarning, stacklevel=2,
         )
-    result = BuildResult(skipped=False, check=check_result, fingerprint=fp)
-    with workspace.atomic_database(settings, workspace.PANELS) as target:
-        con = engine_connect(settings, target)
-        try:
-            con.execute("ATTACH ? AS checked (READ_ONLY)", [str(checked_path)])
-            con.execute("SET search_path = 'main,checked'")
-            for key, value in parameters(settings).items():
-                con.execute(f"SET VARIABLE {key} = ?", [value])
+    result = BuildResult(skipped=False, fingerprint=fp)
+    con = engine_connect(settings)
+    try:
+        result.check = checks.validate(con, settings, progress=lambda text: say("check", text))
+        if not result.check.usable:
+            raise DataError("the export cannot be used as it is:\n  - " + "\n  - ".join(result.check.problems))
+        # The panels read the accepted rows under the contract's table names.
+        for name in INPUT_TABLES:
+            con.execute(f"CREATE OR REPLACE TEMP VIEW {q(name)} AS SELECT * FROM {q('accepted_' + name)}")
+        for key, value in parameters(settings).items():
+            con.execute(f"SET VARIABLE {key} = ?", [value])
+        with workspace.atomic_database(settings, workspace.PANELS) as target:
+            con.execute("ATTACH ? AS out", [str(target)])
+            con.execute("SET search_path = 'out.main'")
             for name in PANEL_ORDER:
                 say("panel", name)
                 started = time.perf_counter()
-                con.execute(f"CREATE TABLE {q(name)} AS {panel_sql(name)}")
+                con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
                 result.seconds[name] = round(time.perf_counter() - started, 3)
-                result.rows[name] = int(scalar(con, f"SELECT count(*) FROM {q(name)}"))
-            con.execute("DETACH checked")
-        finally:
-            con.close()
-    state["build"] = {"fingerprint": fp, "rows": result.rows, "seconds": result.seconds}
+                result.rows[name] = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
+            con.execute("SET search_path = 'memory.main'")
+            con.execute("DETACH out")
+    finally:
+        con.close()
+    state = workspace.read_state(settings)
+    state["build"] = {"fingerprint": fp, "check_fingerprint": check_fp, "rows": result.rows, "seconds": result.seconds}
     workspace.write_state(settings, state)
     return result
 

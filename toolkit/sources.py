@@ -1,13 +1,14 @@
 """The source layer: the only code that reads export files.
 
-Each configured table is read once into a temporary table ``src_<table>`` (one row per export
-row, numbered ``_row_id``, columns renamed to the contract's names and kept as read). A view
-``staged_<table>`` on top of it gives every contract column its type (TRY_CAST / TRY_STRPTIME, so
-an unparseable value becomes a rejected row, never a crash or a silent NULL), applies the value
-mappings, and adds the row-level facts the checks need: ``_missing`` and ``_unparseable`` (the
-names of the offending columns, comma-separated, empty when none), ``_row_hash`` and
-``_raw_values`` (the original values as text, for exact-duplicate checks and the rejects file).
-Tables that are optional and not configured get an empty staged view of the same shape.
+Each configured table is read once, in one pass, into a temporary table ``stage_<table>``: every
+contract column under its contract name and type (TRY_CAST / TRY_STRPTIME, so an unparseable value
+becomes a rejected row, never a crash or a silent NULL), value mappings applied, and the row-level
+facts the checks need: ``_missing`` and ``_unparseable`` (the names of the offending columns,
+comma-separated, empty when none) and ``_raw_problem`` (the original text of the row, kept only
+for rows with such a fault). The view ``staged_<table>`` adds ``_row_id`` (the stage's row
+number), ``_row_hash`` (of all values, for the exact-duplicate rule) and ``_raw_values`` (the
+original text, or the typed values as text where every value parsed). Tables that are optional
+and not configured get an empty staged view of the same shape.
 """
 
 from __future__ import annotations
@@ -101,6 +102,16 @@ def _describe(con: duckdb.DuckDBPyConnection, reader: str, table: TableSettings,
 
 
 def _check_columns(settings: Settings, table: TableSettings, contract: InputTable, found: list[str], files: list[str]) -> None:
+    for name, wanted in table.columns.items():
+        # A mapping line names a column on purpose: one the export lacks is a mistake, even for
+        # an optional column (otherwise, say, list_amount would be silently derived instead).
+        if wanted not in found and not contract.column_is_required(name):
+            close = difflib.get_close_matches(wanted, found, n=3, cutoff=0.4)
+            hint = f"closest columns: {', '.join(close)}" if close else f"columns found: {', '.join(found[:12])}"
+            raise DataError(
+                f"table {table.name}: tables.{table.name}.columns.{name} = {wanted!r} names a column that is not "
+                f"in {files[0]}; {hint}; fix the name or remove the line"
+            )
     missing = []
     for name in contract.required:
         if table.export_column(name) not in found:
@@ -126,11 +137,16 @@ def _check_columns(settings: Settings, table: TableSettings, contract: InputTabl
     )
 
 
-def _typed_expression(table: TableSettings, column_name: str, column_type: str, con: duckdb.DuckDBPyConnection) -> tuple[str, str]:
-    """(typed expression, raw-text expression) for one contract column of ``src_<table>``."""
+def _typed_expression(table: TableSettings, column_name: str, column_type: str, con: duckdb.DuckDBPyConnection,
+                      raw_is_text: bool = True) -> tuple[str, str]:
+    """(typed expression, raw-text expression) for one contract column, read as ``r_<column>``.
+
+    Text is blank when empty or spaces; a value read with a type (Parquet) only when null.
+    """
     raw = q(f"r_{column_name}")
-    text = f"CAST({raw} AS VARCHAR)"
-    blank = f"({raw} IS NULL OR trim({text}) = '')"
+    text = f"CAST({raw} AS VARCHAR)" if not raw_is_text else raw
+    blank = f"({raw} IS NULL OR trim({raw}) = '')" if raw_is_text else f"({raw} IS NULL)"
+
     if table.formats.get(column_name):
         var = f"liftlag_fmt_{table.name}_{column_name}"
         con.execute(f"SET VARIABLE {var} = ?", [table.formats[column_name]])
@@ -143,7 +159,12 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
             con.execute(f"SET VARIABLE {var} = map(?, ?)", [list(mapping.values()), list(mapping.keys())])
             typed = f"coalesce(getvariable('{var}')[{text}], {text})"
     elif column_type == "TIMESTAMP":
-        typed = f"TRY_CAST({raw} AS TIMESTAMP)"
+        # A time with a UTC offset (text, or Parquet TIMESTAMPTZ) becomes UTC; a time without one
+        # is kept as written. (The connection's time zone is UTC.)
+        typed = f"CAST(TRY_CAST({raw} AS TIMESTAMPTZ) AS TIMESTAMP)" if raw_is_text else f"TRY_CAST({raw} AS TIMESTAMP)"
+    elif column_type == "DOUBLE":
+        # NaN and infinity parse as numbers but are no amount: they count as unparseable.
+        typed = f"CASE WHEN isfinite(TRY_CAST({raw} AS DOUBLE)) THEN TRY_CAST({raw} AS DOUBLE) END"
     else:
         typed = f"TRY_CAST({raw} AS {column_type})"
     return f"CASE WHEN {blank} THEN NULL ELSE {typed} END", text
@@ -159,7 +180,7 @@ def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
 
 
 def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) -> dict[str, SourceInfo]:
-    """Read every configured table into ``src_<table>`` and define its ``staged_<table>`` view.
+    """Read every configured table, in one pass, into ``stage_<table>``; define ``staged_<table>``.
 
     Raises
     ------
@@ -174,53 +195,96 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
             continue
         files = resolve_files(settings, table)
         reader = _reader(con, table, files)
-        found = [c for c, _ in _describe(con, reader, table, files)]
+        described = _describe(con, reader, table, files)
+        found = [c for c, _ in described]
+        found_types = dict(described)
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
         extras = [c for c in found if c not in mapped and c != "_source_file"] if contract.extra_columns else []
-        select = [f"{q(table.export_column(c.name))} AS {q('r_' + c.name)}" for c in present]
-        select += [f"{q(c)} AS {q('x_' + c)}" for c in extras]
         if progress:
             progress(f"reading {name}")
+        # Small tables keep file order, so "the first row" of a repeated key is the file's first.
+        con.execute(f"SET preserve_insertion_order = {'false' if name == 'transactions' else 'true'}")
         try:
-            con.execute(
-                f"CREATE OR REPLACE TEMP TABLE {q('src_' + name)} AS "
-                f"SELECT row_number() OVER () AS _row_id, _source_file, {', '.join(select)} FROM {reader}"
-            )
+            read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
+            con.execute(_stage_sql(con, table, contract, reader, read_types, extras))
         except duckdb.Error as exc:
             first = str(exc).strip().splitlines()[0]
             raise DataError(f"table {name}: cannot read {files[0]}: {first}") from None
-        rows = scalar(con, f"SELECT count(*) FROM {q('src_' + name)}")
-        _define_staged(con, table, contract, present_names={c.name for c in present}, extras=extras)
+        finally:
+            con.execute("SET preserve_insertion_order = false")
+        rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
+        _define_staged_view(con, contract, extras)
         infos[name] = SourceInfo(name, tuple(files), int(rows), tuple(found), tuple(extras))
     return infos
 
 
-def _define_staged(con, table: TableSettings, contract: InputTable, present_names: set[str], extras: list[str]) -> None:
-    typed_cols, missing_parts, unparseable_parts, raw_texts = [], [], [], []
+def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, present: dict[str, str], extras: list[str]) -> str:
+    """One pass over the files: typed columns plus the facts the checks need.
+
+    ``present`` maps each contract column found to the DuckDB type it was read with. Text is
+    blank when empty or spaces; a typed (Parquet) value only when null. ``_raw_problem`` keeps the
+    original text of every column, but only for rows with a missing or unparseable value (the
+    rows whose typed values cannot stand for what was read).
+    """
+    renamed, typed_cols, missing_parts, unparseable_parts, raw_texts = [], [], [], [], []
     for c in contract.columns:
-        if c.name not in present_names:
+        if c.name not in present:
             typed_cols.append(f"CAST(NULL AS {c.type}) AS {q(c.name)}")
             continue
-        typed, text = _typed_expression(table, c.name, c.type, con)
-        typed_cols.append(f"{typed} AS {q(c.name)}")
         raw = q(f"r_{c.name}")
-        blank = f"({raw} IS NULL OR trim({text}) = '')"
+        renamed.append(f"{q(table.export_column(c.name))} AS {raw}")
+        is_text = present[c.name].upper() == "VARCHAR"
+        typed, text = _typed_expression(table, c.name, c.type, con, raw_is_text=is_text)
+        typed_cols.append(f"{typed} AS {q(c.name)}")
+        blank = f"({raw} IS NULL OR trim({raw}) = '')" if is_text else f"({raw} IS NULL)"
         raw_texts.append(f"{q(c.name)} := {text}")
         if c.required:
-            missing_parts.append(f"CASE WHEN {blank} THEN '{c.name}' END")
-        # A value that is present but does not parse (or maps to nothing allowed) is unparseable.
-        unparseable_parts.append(f"CASE WHEN NOT {blank} AND ({typed}) IS NULL THEN '{c.name}' END")
+            missing_parts.append((blank, c.name))
+        # A value that is present but does not parse is unparseable.
+        unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name))
+    renamed += [f"{q(e)} AS {q('x_' + e)}" for e in extras]
+    raw_texts += [f"{q(e)} := CAST({q('x_' + e)} AS VARCHAR)" for e in extras]
     extra_cols = [f"{q('x_' + e)} AS {q(e)}" for e in extras]
-    missing = f"concat_ws(', ', {', '.join(missing_parts)})" if missing_parts else "''"
-    unparseable = f"concat_ws(', ', {', '.join(unparseable_parts)})" if unparseable_parts else "''"
-    raw_struct = f"struct_pack({', '.join(raw_texts)})"
+    names = [q(c.name) for c in contract.columns] + [q(e) for e in extras]
+    missing = _names_where(missing_parts)
+    unparseable = _names_where(unparseable_parts)
+    raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
+    read = f"SELECT _source_file, {', '.join(renamed)} FROM {reader}"
+    typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
+    facts = f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable FROM ({typed})"
+    problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' THEN {raw_struct} END AS _raw_problem "
+               f"FROM ({facts})")
+    return (
+        f"CREATE OR REPLACE TEMP TABLE {q('stage_' + contract.name)} AS "
+        f"SELECT _source_file, {', '.join(names)}, _missing, _unparseable, _raw_problem, "
+        f"hash({', '.join(names)}, _raw_problem) AS _row_hash FROM ({problem})"
+    )
+
+
+def _names_where(conditions: list[tuple[str, str]]) -> str:
+    """Comma-separated names of the columns whose condition holds ('' when none).
+
+    CASE evaluates a branch only for the rows that reach it, so the text costs nothing on the
+    (usual) rows where no condition holds.
+    """
+    if not conditions:
+        return "''"
+    any_holds = " OR ".join(f"({cond})" for cond, _ in conditions)
+    parts = ", ".join(f"CASE WHEN {cond} THEN '{name}' END" for cond, name in conditions)
+    return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
+
+
+def _define_staged_view(con, contract: InputTable, extras: list[str]) -> None:
+    """``staged_<table>``: the stage with its row number, a row hash and the values as text."""
+    names = [c.name for c in contract.columns] + list(extras)
+    cols = ", ".join(q(n) for n in names)
+    as_text = f"CAST(struct_pack({', '.join(f'{q(n)} := {q(n)}' for n in names)}) AS VARCHAR)"
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT _row_id, _source_file, "
-        f"{', '.join(typed_cols + extra_cols)}, {missing} AS _missing, {unparseable} AS _unparseable, "
-        f"hash({raw_struct}) AS _row_hash, CAST({raw_struct} AS VARCHAR) AS _raw_values "
-        f"FROM {q('src_' + contract.name)}"
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT rowid + 1 AS _row_id, "
+        f"_source_file, {cols}, _missing, _unparseable, _row_hash, "
+        f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name)}"
     )
 
 

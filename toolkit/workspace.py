@@ -94,6 +94,13 @@ def connect(settings: Settings) -> duckdb.DuckDBPyConnection:
         raise AnalysisError(
             f"no built workspace in {settings.workspace_dir}; run `liftlag build -c {settings.config_path}` first"
         )
+    state = read_state(settings)
+    built_on = state.get("build", {}).get("check_fingerprint")
+    if built_on is None or built_on != state.get("check", {}).get("fingerprint"):
+        raise AnalysisError(
+            f"the panels in {settings.workspace_dir} are not those of the last check; "
+            f"run `liftlag build -c {settings.config_path}`"
+        )
     con = engine_connect(settings, panels, read_only=True)
     con.execute("ATTACH ? AS checked (READ_ONLY)", [str(checked)])
     return con

@@ -39,7 +39,8 @@ by_order AS (
         sum(net_amount) AS net_amount,
         sum(list_amount) AS list_amount,
         sum(discount_amount) AS discount_amount,
-        sum(cost_amount) AS cost_amount,
+        -- One line of unknown cost makes the order's cost unknown (sum() would skip it).
+        CASE WHEN count(cost_amount) = count(*) THEN sum(cost_amount) END AS cost_amount,
         bool_or(promotion_id IS NOT NULL OR discount_amount > 0) AS is_deal,
         arg_max(promotion_id, discount_amount) FILTER (WHERE promotion_id IS NOT NULL) AS promotion_id
     FROM costed

@@ -48,6 +48,7 @@ def connect(settings: Settings | None = None, database: str | Path = ":memory:",
     # Row order is never relied on (every table is keyed), so DuckDB may stream and spill freely.
     con.execute("SET preserve_insertion_order = false")
     con.execute("SET TimeZone = 'UTC'")
+    con.execute("SET enable_progress_bar = false")
     return con
 
 

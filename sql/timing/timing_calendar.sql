@@ -1,0 +1,62 @@
+-- Table: timing_calendar — one row per day from the first purchase to the day after the export's
+-- end: whether a broadcast sale runs, whether the day lies in the anticipation window before an
+-- expected campaign start, the calendar month, and a running count of the days on which any of
+-- these changes (spells are cut at those days by number, without a range join).
+-- Reads: timing_purchase_days, checked.promotions,
+--        timing_expected_starts (start_day INTEGER: expected starts from the cadence, days since 1970-01-01)
+-- Parameters: getvariable('timing_anticipation_days')
+CREATE OR REPLACE TEMP TABLE timing_calendar AS
+WITH span AS (
+    SELECT min(day_no) AS first_day, max(day_no + gap_days) + 1 AS last_day
+    FROM timing_purchase_days
+),
+
+days AS (
+    SELECT CAST(t.day_no AS INTEGER) AS day_no
+    FROM span, range(span.first_day, span.last_day + 1) AS t(day_no)
+),
+
+broadcasts AS (
+    SELECT
+        CAST(date_diff('day', DATE '1970-01-01', CAST(starts_at AS DATE)) AS INTEGER) AS from_day,
+        CAST(date_diff('day', DATE '1970-01-01', CAST(ends_at AS DATE)) AS INTEGER) AS to_day  -- inclusive
+    FROM checked.promotions
+    WHERE audience = 'broadcast'
+),
+
+flags AS (
+    SELECT
+        d.day_no,
+        EXISTS (
+            SELECT 1 FROM broadcasts AS b WHERE d.day_no BETWEEN b.from_day AND b.to_day
+        ) AS is_broadcast_running,
+        EXISTS (
+            SELECT 1 FROM timing_expected_starts AS x
+            WHERE d.day_no BETWEEN x.start_day - getvariable('timing_anticipation_days') AND x.start_day - 1
+        ) AS is_anticipation_window,
+        CAST(year(DATE '1970-01-01' + d.day_no) * 12 + month(DATE '1970-01-01' + d.day_no) - 1 AS INTEGER) AS month_no
+    FROM days AS d
+),
+
+marked AS (
+    SELECT
+        *,
+        coalesce(
+            is_broadcast_running <> lag(is_broadcast_running) OVER by_day
+            OR is_anticipation_window <> lag(is_anticipation_window) OVER by_day
+            OR month_no <> lag(month_no) OVER by_day,
+            false
+        ) AS is_change
+    FROM flags
+    WINDOW by_day AS (ORDER BY day_no)
+)
+
+SELECT
+    day_no,
+    is_broadcast_running,
+    is_anticipation_window,
+    month_no,
+    is_change,
+    CAST(sum(CAST(is_change AS INTEGER)) OVER (ORDER BY day_no ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS INTEGER)
+        AS changes_through
+FROM marked
