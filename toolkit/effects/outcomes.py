@@ -88,9 +88,10 @@ def campaign_effects_table(panel: pd.DataFrame, *, promotion_id: str, alpha: flo
 
 
 def lift_of(effects: pd.DataFrame, outcome: str, window: str, method: str = "cuped") -> pd.Series:
-    """One row of a campaign_effects table (falls back to welch when the method is missing)."""
+    """One row of a campaign_effects table (falls back to welch, then doubly_robust, when the method is missing)."""
     sel = effects[(effects["outcome"] == outcome) & (effects["window"] == window)]
-    row = sel[sel["method"] == method]
-    if row.empty:
-        row = sel[sel["method"] == "welch"]
-    return row.iloc[0]
+    for name in (method, "welch", "doubly_robust"):
+        row = sel[sel["method"] == name]
+        if len(row):
+            return row.iloc[0]
+    raise KeyError(f"no {outcome} ({window}) row in the effects table")

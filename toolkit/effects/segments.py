@@ -7,7 +7,9 @@
 - lost_cause: |uplift| below the threshold and purchase probability below ``baseline_threshold``
 
 The four names are the usual terms of the trade (common practice, no source). The thresholds are
-always written beside the counts.
+always written beside the counts. The readout's default ``baseline_threshold`` is the holdout's
+buying rate in the campaign window: a sure thing is more likely than the average customer to buy
+anyway, whatever the offer.
 """
 
 from __future__ import annotations
@@ -17,14 +19,13 @@ import pandas as pd
 
 SEGMENTS = ("persuadable", "sure_thing", "lost_cause", "do_not_disturb")
 UPLIFT_THRESHOLD = 0.02
-BASELINE_THRESHOLD = 0.5
 SEGMENT_COLUMNS = ["segment", "customers", "share", "n_treated", "n_holdout", "redemption_rate", "discount_cost",
                    "treated_rate", "holdout_rate", "observed_uplift", "mean_predicted_uplift",
                    "mean_baseline_probability", "uplift_threshold", "baseline_threshold"]
 
 
 def assign_segments(uplift, baseline_probability, *, uplift_threshold: float = UPLIFT_THRESHOLD,
-                    baseline_threshold: float = BASELINE_THRESHOLD) -> np.ndarray:
+                    baseline_threshold: float) -> np.ndarray:
     """Segment label per customer (see the module docstring)."""
     tau = np.asarray(uplift, dtype=float)
     base = np.asarray(baseline_probability, dtype=float)

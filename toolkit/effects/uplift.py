@@ -35,8 +35,8 @@ from .qini import area_under_uplift_curve, qini_coefficient
 
 LEARNERS = ("t_learner", "x_learner", "transformed_outcome")
 BOOSTING = {
-    "max_iter": 50,
-    "learning_rate": 0.1,
+    "max_iter": 25,
+    "learning_rate": 0.2,
     "max_leaf_nodes": 8,
     "max_bins": 64,
     "min_samples_leaf": 40,
@@ -44,6 +44,7 @@ BOOSTING = {
     "early_stopping": False,
 }
 SINGLE_THREAD_BELOW = 200_000  # rows; smaller fits run faster on one thread than with contention
+MAX_FIT_ROWS = 250_000  # per fold: larger training folds are fitted on a seeded random sample of this size
 
 
 class _Constant:
@@ -105,17 +106,21 @@ class TLearner:
         x, y, t = _check_inputs(features, outcome, treated)
         params = {**BOOSTING, **(self.boosting or {})}
         self.binary_ = bool(np.isin(y, (0.0, 1.0)).all())
-        self.treated_model_ = _fit_outcome_model(x[t], y[t], binary=self.binary_, seed=self.seed, boosting=params)
-        self.holdout_model_ = _fit_outcome_model(x[~t], y[~t], binary=self.binary_, seed=self.seed + 1, boosting=params)
+        with _thread_limit(None, len(y)):
+            self.treated_model_ = _fit_outcome_model(x[t], y[t], binary=self.binary_, seed=self.seed, boosting=params)
+            self.holdout_model_ = _fit_outcome_model(x[~t], y[~t], binary=self.binary_, seed=self.seed + 1, boosting=params)
         return self
 
     def predict_baseline(self, features) -> np.ndarray:
         """Expected outcome without the coupon (for a 0/1 outcome: the purchase probability)."""
-        return self.holdout_model_.predict(np.asarray(features, dtype=float))
+        x = np.asarray(features, dtype=float)
+        with _thread_limit(None, len(x)):
+            return self.holdout_model_.predict(x)
 
     def predict(self, features) -> np.ndarray:
         x = np.asarray(features, dtype=float)
-        return self.treated_model_.predict(x) - self.holdout_model_.predict(x)
+        with _thread_limit(None, len(x)):
+            return self.treated_model_.predict(x) - self.holdout_model_.predict(x)
 
 
 class XLearner:
@@ -144,10 +149,11 @@ class XLearner:
         x, y, t = _check_inputs(features, outcome, treated)
         params = {**BOOSTING, **(self.boosting or {})}
         first = outcome_models or TLearner(boosting=self.boosting, seed=self.seed).fit(x, y, t)
-        imputed_treated = y[t] - first.holdout_model_.predict(x[t])
-        imputed_holdout = first.treated_model_.predict(x[~t]) - y[~t]
-        self.treated_effect_model_ = _fit_regressor(x[t], imputed_treated, seed=self.seed + 2, boosting=params)
-        self.holdout_effect_model_ = _fit_regressor(x[~t], imputed_holdout, seed=self.seed + 3, boosting=params)
+        with _thread_limit(None, len(y)):
+            imputed_treated = y[t] - first.holdout_model_.predict(x[t])
+            imputed_holdout = first.treated_model_.predict(x[~t]) - y[~t]
+            self.treated_effect_model_ = _fit_regressor(x[t], imputed_treated, seed=self.seed + 2, boosting=params)
+            self.holdout_effect_model_ = _fit_regressor(x[~t], imputed_holdout, seed=self.seed + 3, boosting=params)
         self.treated_share_ = float(t.mean())
         self.outcome_models_ = first
         return self
@@ -155,7 +161,8 @@ class XLearner:
     def predict(self, features) -> np.ndarray:
         x = np.asarray(features, dtype=float)
         g = self.treated_share_
-        return g * self.holdout_effect_model_.predict(x) + (1 - g) * self.treated_effect_model_.predict(x)
+        with _thread_limit(None, len(x)):
+            return g * self.holdout_effect_model_.predict(x) + (1 - g) * self.treated_effect_model_.predict(x)
 
 
 class TransformedOutcomeLearner:
@@ -178,12 +185,15 @@ class TransformedOutcomeLearner:
         if not 0 < p < 1:
             raise AnalysisError("the transformed outcome needs both arms in the rows fitted")
         z = y * (t.astype(float) - p) / (p * (1 - p))
-        self.model_ = _fit_regressor(x, z, seed=self.seed + 4, boosting={**BOOSTING, **(self.boosting or {})})
+        with _thread_limit(None, len(y)):
+            self.model_ = _fit_regressor(x, z, seed=self.seed + 4, boosting={**BOOSTING, **(self.boosting or {})})
         self.treated_share_ = p
         return self
 
     def predict(self, features) -> np.ndarray:
-        return self.model_.predict(np.asarray(features, dtype=float))
+        x = np.asarray(features, dtype=float)
+        with _thread_limit(None, len(x)):
+            return self.model_.predict(x)
 
 
 def _check_inputs(features, outcome, treated):
@@ -220,6 +230,9 @@ class UpliftModel:
     threads : int, optional
         OpenMP threads for the model fits; by default one thread below 200,000 rows (faster on a
         busy machine), all above.
+    max_fit_rows : int, default=250_000
+        A training fold larger than this is fitted on a seeded random sample of this many rows
+        (the small trees gain nothing from more); every customer is still scored out-of-fold.
 
     Attributes
     ----------
@@ -235,16 +248,20 @@ class UpliftModel:
     fold_models_ : list of dict
         Per fold, learner name -> fitted learner (``predict`` averages them for new customers).
     feature_names_ : list of str
+    sampled_ : bool
+        Whether the training folds were sampled down to ``max_fit_rows``.
     n_treated_, n_holdout_, fit_seconds_ : int, int, float
     """
 
     def __init__(self, *, learners: tuple[str, ...] | list[str] = LEARNERS, folds: int = 5,
-                 seed: int = 20261201, boosting: dict | None = None, threads: int | None = None):
+                 seed: int = 20261201, boosting: dict | None = None, threads: int | None = None,
+                 max_fit_rows: int = MAX_FIT_ROWS):
         self.learners = learners
         self.folds = folds
         self.seed = seed
         self.boosting = boosting
         self.threads = threads
+        self.max_fit_rows = max_fit_rows
 
     def fit(self, features: pd.DataFrame, *, outcome, treated) -> "UpliftModel":
         """Cross-fit every learner on ``features`` and choose one by out-of-fold Qini coefficient."""
@@ -271,9 +288,14 @@ class UpliftModel:
         scores = {name: np.full(len(y), np.nan) for name in self.learners}
         baseline = np.full(len(y), np.nan)
         self.fold_models_ = []
-        with _thread_limit(self.threads, len(y)):
+        self.sampled_ = False
+        sampler = np.random.default_rng(self.seed)
+        with _thread_limit(self.threads, min(len(y), self.max_fit_rows)):
             for fold, (train, test) in enumerate(splitter.split(x, strata)):
                 seed = self.seed + 10 * fold
+                if len(train) > self.max_fit_rows:
+                    train = np.sort(sampler.choice(train, self.max_fit_rows, replace=False))
+                    self.sampled_ = True
                 fitted = {}
                 t_model = TLearner(boosting=self.boosting, seed=seed).fit(x[train], y[train], t[train])
                 baseline[test] = t_model.predict_baseline(x[test])
