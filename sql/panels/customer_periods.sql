@@ -13,12 +13,61 @@ first_weeks AS (
     GROUP BY customer_id
 ),
 
-weeks AS (
-    SELECT f.customer_id, CAST(w.week_at AS DATE) AS week_on
-    FROM first_weeks AS f
+-- A customer may be assigned twice to one promotion (see the customer_in_both_arms warning):
+-- the earliest assignment counts.
+first_assignments AS (
+    SELECT promotion_id, customer_id, arg_min(arm, assigned_at) AS arm, min(assigned_at) AS assigned_at
+    FROM assignments
+    GROUP BY promotion_id, customer_id
+),
+
+-- Coupons received: treatment assignments, counted from the week they arrive (or the customer's
+-- first week, for coupons that arrived before the first order).
+coupon_arrivals AS (
+    SELECT
+        a.customer_id,
+        greatest(CAST(date_trunc('week', CAST(a.assigned_at AS DATE)) AS DATE), f.first_week_on) AS week_on,
+        count(*) AS coupons
+    FROM first_assignments AS a
+    INNER JOIN first_weeks AS f ON a.customer_id = f.customer_id
+    WHERE a.arm = 'treatment'
+    GROUP BY ALL
+),
+
+-- Each customer's weeks fall into stretches between coupon arrivals, with a constant count of
+-- coupons received: the running count is taken over these few rows, not over every week.
+stretch_starts AS (
+    SELECT customer_id, first_week_on AS week_on, 0 AS coupons FROM first_weeks
+    UNION ALL
+    SELECT customer_id, week_on, coupons FROM coupon_arrivals
+),
+
+stretches AS (
+    SELECT
+        customer_id,
+        week_on AS starts_on,
+        sum(coupons) AS coupons_at_start
+    FROM stretch_starts
+    GROUP BY customer_id, week_on
+),
+
+numbered_stretches AS (
+    SELECT
+        s.customer_id,
+        s.starts_on,
+        coalesce(lead(s.starts_on) OVER (PARTITION BY s.customer_id ORDER BY s.starts_on ASC NULLS FIRST) - 7, b.last_week_on) AS ends_on,
+        sum(s.coupons_at_start) OVER (
+            PARTITION BY s.customer_id ORDER BY s.starts_on ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+        ) AS coupons_received
+    FROM stretches AS s
     CROSS JOIN bounds AS b
+),
+
+weeks AS (
+    SELECT s.customer_id, CAST(w.week_at AS DATE) AS week_on, s.coupons_received
+    FROM numbered_stretches AS s
     CROSS JOIN LATERAL (
-        SELECT unnest(generate_series(CAST(f.first_week_on AS TIMESTAMP), CAST(b.last_week_on AS TIMESTAMP), INTERVAL 7 DAY)) AS week_at
+        SELECT unnest(generate_series(CAST(s.starts_on AS TIMESTAMP), CAST(s.ends_on AS TIMESTAMP), INTERVAL 7 DAY)) AS week_at
     ) AS w
 ),
 
@@ -49,14 +98,6 @@ broadcast_weeks AS (
     SELECT DISTINCT week_on FROM promotion_weeks WHERE audience = 'broadcast'
 ),
 
--- A customer may be assigned twice to one promotion (see the customer_in_both_arms warning):
--- the earliest assignment counts.
-first_assignments AS (
-    SELECT promotion_id, customer_id, arg_min(arm, assigned_at) AS arm, min(assigned_at) AS assigned_at
-    FROM assignments
-    GROUP BY promotion_id, customer_id
-),
-
 assigned_weeks AS (
     SELECT
         a.customer_id,
@@ -65,19 +106,6 @@ assigned_weeks AS (
         bool_or(a.arm = 'holdout') AS is_holdout_active
     FROM first_assignments AS a
     INNER JOIN promotion_weeks AS pw ON a.promotion_id = pw.promotion_id
-    GROUP BY ALL
-),
-
--- Coupons received: treatment assignments, counted from the week they arrive (or the customer's
--- first week, for coupons that arrived before the first order).
-coupon_arrivals AS (
-    SELECT
-        a.customer_id,
-        greatest(CAST(date_trunc('week', CAST(a.assigned_at AS DATE)) AS DATE), f.first_week_on) AS week_on,
-        count(*) AS coupons
-    FROM first_assignments AS a
-    INNER JOIN first_weeks AS f ON a.customer_id = f.customer_id
-    WHERE a.arm = 'treatment'
     GROUP BY ALL
 )
 
@@ -91,12 +119,8 @@ SELECT
     b.week_on IS NOT NULL AS is_broadcast_running,
     coalesce(aw.is_coupon_active, false) AS is_coupon_active,
     coalesce(aw.is_holdout_active, false) AS is_holdout_active,
-    CAST(sum(coalesce(c.coupons, 0)) OVER (
-        PARTITION BY w.customer_id ORDER BY w.week_on ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
-    ) AS BIGINT) AS coupons_received
+    CAST(w.coupons_received AS BIGINT) AS coupons_received
 FROM weeks AS w
 LEFT JOIN weekly_orders AS o ON w.customer_id = o.customer_id AND w.week_on = o.week_on
 LEFT JOIN broadcast_weeks AS b ON w.week_on = b.week_on
 LEFT JOIN assigned_weeks AS aw ON w.customer_id = aw.customer_id AND w.week_on = aw.week_on
-LEFT JOIN coupon_arrivals AS c ON w.customer_id = c.customer_id AND w.week_on = c.week_on
--- (week_on is never null: NULLS FIRST only spares engines whose default differs a translation.)
