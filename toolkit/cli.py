@@ -60,6 +60,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = sub.add_parser("sql", help="print the panel SQL, transpiled for another engine")
     p.add_argument("--dialect", required=True, help="spark, postgres, snowflake or bigquery (or duckdb, as written)")
     p.add_argument("--panel", default=None, help="only this panel (default: all, in build order)")
+    p.add_argument("-c", "--config", default=None,
+                   help="take the parameters (window lengths, margin rate) from this liftlag.toml (default: the defaults)")
 
     _register_analysis_commands(sub)
     return parser
@@ -165,10 +167,20 @@ def cmd_sql(args) -> int:
         if args.panel not in names:
             raise ConfigError(f"--panel {args.panel!r} is not a panel; panels: {', '.join(names)}")
         names = (args.panel,)
+    if args.config:
+        from . import config
+
+        parameters = panels.parameters(config.load(args.config))
+    else:
+        from .config import Settings
+
+        parameters = panels.parameters(Settings(config_path=Path("liftlag.toml"), tables={}))
+    values = ", ".join(f"{k} = {v}" for k, v in parameters.items())
     for name in names:
         sql = panels.panel_sql(name)
-        text = sql if dialect == "duckdb" else transpile(sql, dialect)
-        print(f"-- panel: {name} ({dialect})\n{text};\n")
+        text = sql if dialect == "duckdb" else transpile(sql, dialect, parameters)
+        bound = "" if dialect == "duckdb" else f"; parameters bound: {values}"
+        print(f"-- panel: {name} ({dialect}{bound})\n{text};\n")
     return 0
 
 

@@ -113,6 +113,15 @@ REQUIRED_TABLES = tuple(n for n, t in INPUT_TABLES.items() if not t.optional)
 # Panels: one table per file in sql/panels/, built in this order (each reads only earlier ones
 # and the checked input tables).
 PANELS: dict[str, tuple[Column, ...]] = {
+    "campaign_assignments": (
+        Column("promotion_id", "VARCHAR", description="one row per promotion x assigned customer"),
+        Column("customer_id", "VARCHAR"),
+        Column("arm", "VARCHAR", description="arm of the customer's earliest assignment to the promotion"),
+        Column("assigned_at", "TIMESTAMP"),
+        Column("audience", "VARCHAR"),
+        Column("starts_on", "DATE", description="the promotion's first day"),
+        Column("ends_on", "DATE", description="the promotion's last day (inclusive)"),
+    ),
     "orders": (
         Column("order_id", "VARCHAR", description="one row per order (lines summed, returns netted)"),
         Column("customer_id", "VARCHAR"),
@@ -127,7 +136,7 @@ PANELS: dict[str, tuple[Column, ...]] = {
         Column("margin_amount", "DOUBLE", description="net_amount - cost_amount: margin after discount"),
         Column("is_deal", "BOOLEAN", description="any line carried a promotion or a discount"),
         Column("is_return", "BOOLEAN", description="net_amount < 0: the order is mostly a return"),
-        Column("promotion_id", "VARCHAR", description="the promotion with the largest discount in the order"),
+        Column("promotion_id", "VARCHAR", description="the promotion the order carried (the first id in sort order if several)"),
         Column("depth", "DOUBLE", description="discount_amount / list_amount (0 when no discount)"),
     ),
     "customer_periods": (

@@ -2,36 +2,28 @@
 -- pre-period features (over pre_period_days before the campaign starts), and the outcomes in
 -- the campaign window (its first to last day) and in the window after it (after_days long).
 -- A window of the campaign's own length just before it gives the CUPED covariates (pre_*).
--- Reads: orders (panel), transactions, promotions, assignments, customers (checked inputs)
+-- Reads: orders, campaign_assignments (panels), transactions, customers (checked inputs)
 -- Parameters: getvariable('pre_period_days'), getvariable('after_days')
-WITH first_assignments AS (
-    -- A customer assigned twice to one promotion (customer_in_both_arms): the earliest counts.
-    SELECT promotion_id, customer_id, arg_min(arm, assigned_at) AS arm, min(assigned_at) AS assigned_at
-    FROM assignments
-    GROUP BY promotion_id, customer_id
-),
-
-assigned AS (
+WITH assigned AS (
     SELECT
-        a.promotion_id,
-        a.customer_id,
-        a.arm,
-        a.assigned_at,
-        CAST(p.starts_at AS DATE) AS starts_on,
-        CAST(p.ends_at AS DATE) AS ends_on,
-        CAST(p.ends_at AS DATE) + CAST(getvariable('after_days') AS INTEGER) AS after_ends_on,
-        CAST(p.starts_at AS DATE) - CAST(getvariable('pre_period_days') AS INTEGER) AS pre_period_on,
-        CAST(p.starts_at AS DATE) - CAST(date_diff('day', CAST(p.starts_at AS DATE), CAST(p.ends_at AS DATE)) + 1 AS INTEGER) AS pre_window_on
-    FROM first_assignments AS a
-    INNER JOIN promotions AS p ON a.promotion_id = p.promotion_id
-    WHERE p.audience = 'targeted'
+        promotion_id,
+        customer_id,
+        arm,
+        assigned_at,
+        starts_on,
+        ends_on,
+        ends_on + CAST(getvariable('after_days') AS INTEGER) AS after_ends_on,
+        starts_on - CAST(getvariable('pre_period_days') AS INTEGER) AS pre_period_on,
+        starts_on - CAST(date_diff('day', starts_on, ends_on) + 1 AS INTEGER) AS pre_window_on
+    FROM campaign_assignments
+    WHERE audience = 'targeted'
 ),
 
 -- Coupons received before this assignment (treatment arms of earlier assignments).
 past_coupons AS (
     SELECT a.promotion_id, a.customer_id, count(e.promotion_id) AS past_coupons
     FROM assigned AS a
-    LEFT JOIN first_assignments AS e
+    LEFT JOIN campaign_assignments AS e
         ON a.customer_id = e.customer_id AND e.arm = 'treatment' AND e.assigned_at < a.assigned_at
     GROUP BY a.promotion_id, a.customer_id
 ),

@@ -1,7 +1,7 @@
 -- Panel: customer_periods — customer x week, every week (Monday start) from the customer's first
 -- order to the export's last week, with zero-order weeks included (the at-risk weeks that a
 -- discrete-time hazard needs), and the promotion exposure of each week.
--- Reads: orders (panel), promotions, assignments (checked inputs)
+-- Reads: orders, campaign_assignments (panels), promotions (checked input)
 -- Parameters: none
 WITH bounds AS (
     SELECT CAST(date_trunc('week', max(ordered_on)) AS DATE) AS last_week_on FROM orders
@@ -13,14 +13,6 @@ first_weeks AS (
     GROUP BY customer_id
 ),
 
--- A customer may be assigned twice to one promotion (see the customer_in_both_arms warning):
--- the earliest assignment counts.
-first_assignments AS (
-    SELECT promotion_id, customer_id, arg_min(arm, assigned_at) AS arm, min(assigned_at) AS assigned_at
-    FROM assignments
-    GROUP BY promotion_id, customer_id
-),
-
 -- Coupons received: treatment assignments, counted from the week they arrive (or the customer's
 -- first week, for coupons that arrived before the first order).
 coupon_arrivals AS (
@@ -28,10 +20,10 @@ coupon_arrivals AS (
         a.customer_id,
         greatest(CAST(date_trunc('week', CAST(a.assigned_at AS DATE)) AS DATE), f.first_week_on) AS week_on,
         count(*) AS coupons
-    FROM first_assignments AS a
+    FROM campaign_assignments AS a
     INNER JOIN first_weeks AS f ON a.customer_id = f.customer_id
     WHERE a.arm = 'treatment'
-    GROUP BY ALL
+    GROUP BY a.customer_id, 2
 ),
 
 -- Each customer's weeks fall into stretches between coupon arrivals, with a constant count of
@@ -80,7 +72,7 @@ weekly_orders AS (
         sum(discount_amount) AS discount_amount,
         count(*) FILTER (WHERE is_deal AND NOT is_return) AS deal_orders
     FROM orders
-    GROUP BY ALL
+    GROUP BY customer_id, 2
 ),
 
 promotion_weeks AS (
@@ -104,9 +96,9 @@ assigned_weeks AS (
         pw.week_on,
         bool_or(a.arm = 'treatment') AS is_coupon_active,
         bool_or(a.arm = 'holdout') AS is_holdout_active
-    FROM first_assignments AS a
+    FROM campaign_assignments AS a
     INNER JOIN promotion_weeks AS pw ON a.promotion_id = pw.promotion_id
-    GROUP BY ALL
+    GROUP BY a.customer_id, pw.week_on
 )
 
 SELECT

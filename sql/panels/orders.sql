@@ -42,7 +42,9 @@ by_order AS (
         -- One line of unknown cost makes the order's cost unknown (sum() would skip it).
         CASE WHEN count(cost_amount) = count(*) THEN sum(cost_amount) END AS cost_amount,
         bool_or(promotion_id IS NOT NULL OR discount_amount > 0) AS is_deal,
-        arg_max(promotion_id, discount_amount) FILTER (WHERE promotion_id IS NOT NULL) AS promotion_id
+        -- An order rarely carries two promotions; when it does, the first id in sort order
+        -- stands for it (its lines keep their own, and campaign_windows reads those).
+        min(promotion_id) AS promotion_id
     FROM costed
     GROUP BY customer_id, order_id
 )

@@ -1,24 +1,16 @@
 -- Panel: purchase_gaps — each purchase to the customer's next purchase, in days, censored at the
 -- export's last day, with the purchase's deal flag and depth, the coupons the customer had
 -- received by then, and whether a promotion the customer could use was running that day.
--- Reads: orders (panel), promotions, assignments (checked inputs)
+-- Reads: orders, campaign_assignments (panels), promotions (checked input)
 -- Parameters: none
 WITH bounds AS (
     SELECT max(ordered_on) AS export_end_on FROM orders
 ),
 
-first_assignments AS (
-    -- A customer assigned twice to one promotion (customer_in_both_arms): the earliest counts.
-    SELECT promotion_id, customer_id, arg_min(arm, assigned_at) AS arm, min(assigned_at) AS assigned_at
-    FROM assignments
-    GROUP BY promotion_id, customer_id
-),
-
 coupons AS (
-    SELECT a.customer_id, a.assigned_at, CAST(p.starts_at AS DATE) AS starts_on, CAST(p.ends_at AS DATE) AS ends_on
-    FROM first_assignments AS a
-    INNER JOIN promotions AS p ON a.promotion_id = p.promotion_id
-    WHERE a.arm = 'treatment'
+    SELECT customer_id, assigned_at, starts_on, ends_on
+    FROM campaign_assignments
+    WHERE arm = 'treatment'
 ),
 
 -- Purchases and coupon arrivals on one time line per customer, in one window pass. Return-only

@@ -252,10 +252,10 @@ def test_two_arms_mapped_to_one_export_value_is_a_config_error(tmp_path, capsys)
     assert code == 2 and "values.arm" in out
 
 
-@pytest.mark.xfail(strict=True, reason="`liftlag sql --dialect postgres` keeps DuckDB-only getvariable, arg_max/arg_min and GROUP BY ALL")
 def test_postgres_sql_uses_no_duckdb_only_constructs(capsys):
-    """Checked by running the output on a local PostgreSQL 15.18: every panel fails on these
-    (function getvariable / arg_max / arg_min does not exist; syntax error at GROUP BY ALL)."""
+    """Checked by running the output on a local PostgreSQL 15.18: every panel failed on these
+    (function getvariable / arg_max / arg_min does not exist; syntax error at GROUP BY ALL).
+    Parameters are now bound as literals and the panels use portable aggregates."""
     code, out = run(["sql", "--dialect", "postgres"], capsys)
     assert code == 0
     body = "\n".join(l for l in out.splitlines() if not l.lstrip().startswith(("--", "/*"))).upper()

@@ -23,7 +23,19 @@ def test_sql_command_prints_every_panel(dialect, capsys):
     assert cli.main(["sql", "--dialect", dialect]) == 0
     out = capsys.readouterr().out
     for panel in panels.PANEL_ORDER:
-        assert f"-- panel: {panel} ({dialect})" in out
+        assert f"-- panel: {panel} ({dialect}; parameters bound:" in out
+    body = "\n".join(line for line in out.splitlines() if not line.lstrip().startswith(("--", "/*")))
+    assert "GETVARIABLE" not in body.upper()  # values are bound, so the SQL runs as printed
+
+
+def test_sql_command_binds_the_configs_parameters(tmp_path, capsys):
+    from tests.conftest import write_export
+
+    cfg = write_export(tmp_path / "e")  # after_days = 14, pre_period_days = 60, margin_rate = 0.4
+    assert cli.main(["sql", "--dialect", "spark", "--panel", "campaign_windows", "-c", str(cfg)]) == 0
+    out = capsys.readouterr().out
+    assert "pre_period_days = 60, after_days = 14" in out
+    assert "ends_on + CAST(14 AS INT)" in out
 
 
 def test_sql_command_rejects_an_unknown_dialect(capsys):
