@@ -71,6 +71,7 @@ class CheckResult:
     problems: list[str] = field(default_factory=list)  # reasons the data cannot be used
     fingerprint: str = ""
     seconds: float = 0.0
+    examples: pd.DataFrame | None = None  # up to 3 rejected rows per table and reason
 
     @property
     def usable(self) -> bool:
@@ -82,7 +83,7 @@ def input_fingerprint(settings: Settings) -> tuple[str, dict]:
     for name, table in settings.tables.items():
         files[name] = sources.fingerprint_files(sources.resolve_files(settings, table))
     rules = {r.name: r.sql() for r in RULES}
-    source_code = Path(sources.__file__).read_text(encoding="utf-8")
+    source_code = [Path(path).read_text(encoding="utf-8") for path in (sources.__file__, __file__)]
     config = {k: v for k, v in settings.raw.items() if k in ("tables", "economics")}
     return workspace.fingerprint(config, files, rules, source_code), files
 
@@ -172,7 +173,8 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     say = progress or (lambda text: None)
     fp, _ = input_fingerprint(settings)
     infos = sources.register(con, settings, progress=say)
-    con.execute(sources.staged_union_sql())
+    for statement in sources.staged_union_sql():
+        con.execute(statement)
     con.execute("SET VARIABLE allowed_arm = ?", [list(ARMS)])
     con.execute("SET VARIABLE allowed_mechanic = ?", [list(MECHANICS)])
     con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
@@ -223,6 +225,13 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     warnings = con.execute(
         "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
     ).df()
+    examples = con.execute(
+        "SELECT table_name AS \"table\", reason, row_id, source_file, detail, raw_values FROM ("
+        "SELECT r.table_name, r.reason, r._row_id AS row_id, s._source_file AS source_file, r.detail, s._raw_values AS raw_values, "
+        "row_number() OVER (PARTITION BY r.table_name, r.reason ORDER BY r._row_id) AS n "
+        "FROM rejected AS r INNER JOIN staged_all_sources AS s ON r.table_name = s.table_name AND r._row_id = s._row_id"
+        ") WHERE n <= 3 ORDER BY 1, 2, 3"
+    ).df()
     state = workspace.read_state(settings)
     state["check"] = {"fingerprint": fp, "usable": not problems, "problems": problems,
                       "summary": summary.to_dict(orient="records")}
@@ -231,7 +240,7 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
         state.pop("build", None)
         workspace.path(settings, workspace.PANELS).unlink(missing_ok=True)
     workspace.write_state(settings, state)
-    return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started)
+    return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started, examples)
 
 
 def _summary(con, infos: dict) -> pd.DataFrame:

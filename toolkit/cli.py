@@ -112,6 +112,11 @@ def print_check(result) -> None:
         for row in result.rejects.itertuples(index=False):
             rej.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
         console.print(rej)
+        if result.examples is not None and len(result.examples):
+            console.print("examples (first rows of each reason):")
+            for row in result.examples.itertuples(index=False):
+                where = f"{Path(row.source_file).name} row {row.row_id}" if row.source_file else f"row {row.row_id}"
+                console.print(f"  {row.table} / {row.reason}: {where}: {row.detail} — {row.raw_values}", markup=False)
     if len(result.warnings):
         warn = Table(title="warnings (rows kept)")
         for col in ("table", "rule", "rows"):
@@ -136,9 +141,7 @@ def run_build(settings, force: bool = False):
     started = time.perf_counter()
     with console.status("building…") as status:
         def progress(step, detail=""):
-            status.update(f"{step}: {detail}")
-            if step == "panel":
-                console.print(f"  building panel [bold]{detail}[/]")
+            status.update(f"{step}: {escape(detail)}")
 
         result = panels.build(settings, force=force, progress=progress)
     if result.check is not None:

@@ -9,13 +9,14 @@ fits. Every guess is marked ``# guessed`` in the file and printed.
 from __future__ import annotations
 
 import difflib
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
 import duckdb
 
 from .contract import INPUT_TABLES
-from .errors import ConfigError, DataError
+from .errors import ConfigError, DataError, DataWarning
 
 SYNONYMS: dict[str, tuple[str, ...]] = {
     "order_id": ("order_id", "order", "order_no", "order_number", "basket", "basket_id", "basket_no",
@@ -111,6 +112,7 @@ def find_candidates(export_dir: Path) -> list[Candidate]:
         raise ConfigError(f"{export_dir} is not a folder; give the folder that holds the export's files")
     con = duckdb.connect()
     candidates: list[Candidate] = []
+    skipped: list[str] = []
     parquet_dirs: dict[Path, list[Path]] = {}
     for f in sorted(export_dir.rglob("*")):
         if not f.is_file() or f.name.startswith("."):
@@ -120,7 +122,11 @@ def find_candidates(export_dir: Path) -> list[Candidate]:
             parquet_dirs.setdefault(export_dir / top, []).append(f)
         elif f.name.endswith((".csv", ".csv.gz", ".tsv", ".tsv.gz")):
             rel = f.relative_to(export_dir).as_posix()
-            cols = _describe(con, "SELECT * FROM read_csv(?, sample_size = 2048)", [str(f)], f)
+            try:
+                cols = _describe(con, "SELECT * FROM read_csv(?, sample_size = 2048)", [str(f)], f)
+            except DataError as exc:  # one unreadable file does not stop the others
+                skipped.append(str(exc))
+                continue
             candidates.append(Candidate(rel, "csv", cols, [str(f)]))
     for top, files in parquet_dirs.items():
         if top.is_file():
@@ -131,7 +137,10 @@ def find_candidates(export_dir: Path) -> list[Candidate]:
             cols = _describe(con, "SELECT * FROM read_parquet(?, union_by_name = true)", [[str(p) for p in files]], top)
         candidates.append(Candidate(rel, "parquet", cols, [str(p) for p in files] if not top.is_file() else [str(top)]))
     if not candidates:
-        raise DataError(f"{export_dir}: no Parquet or CSV files found (looked for *.parquet, *.csv, *.csv.gz)")
+        extra = ("; " + "; ".join(skipped)) if skipped else ""
+        raise DataError(f"{export_dir}: no readable Parquet or CSV files found (looked for *.parquet, *.csv, *.csv.gz){extra}")
+    for message in skipped:
+        warnings.warn(f"liftlag init skipped a file: {message}", DataWarning, stacklevel=2)
     return candidates
 
 
@@ -227,7 +236,7 @@ def render_config(chosen: dict[str, Candidate]) -> tuple[str, list[str]]:
                     lines.append(f'{arm} = "{value}"  # guessed from the values found')
                     report.append(f"  arm {arm} <- {value!r} (guessed)")
         lines.append("")
-    lines += ["[economics]", "margin_rate = 0.35  # guessed: a placeholder, set your own margin rate",
+    lines += ["[economics]", "# margin_rate = 0.35  -- set your own: it stands in for products.unit_cost where that is missing",
               'currency = "EUR"  # guessed', "", "[windows]", "pre_period_days = 365", "after_days = 28", "",
               "[workspace]", 'path = ".liftlag"', ""]
     return "\n".join(lines), report

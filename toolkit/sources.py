@@ -13,6 +13,7 @@ and not configured get an empty staged view of the same shape.
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import glob
 from dataclasses import dataclass
@@ -101,6 +102,20 @@ def _describe(con: duckdb.DuckDBPyConnection, reader: str, table: TableSettings,
     return [(r[0], r[1]) for r in rows]
 
 
+def _match_names_loosely(table: TableSettings, contract: InputTable, found: list[str]) -> TableSettings:
+    """Accept a header that differs from the wanted name only in case or surrounding spaces."""
+    loose: dict[str, list[str]] = {}
+    for name in found:
+        loose.setdefault(name.strip().lower(), []).append(name)
+    columns = dict(table.columns)
+    for c in contract.columns:
+        wanted = table.export_column(c.name)
+        candidates = loose.get(wanted.strip().lower(), [])
+        if wanted not in found and len(candidates) == 1:
+            columns[c.name] = candidates[0]
+    return dataclasses.replace(table, columns=columns) if columns != table.columns else table
+
+
 def _check_columns(settings: Settings, table: TableSettings, contract: InputTable, found: list[str], files: list[str]) -> None:
     for name, wanted in table.columns.items():
         # A mapping line names a column on purpose: one the export lacks is a mistake, even for
@@ -152,12 +167,13 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
         con.execute(f"SET VARIABLE {var} = ?", [table.formats[column_name]])
         typed = f"TRY_STRPTIME(trim({text}), getvariable('{var}'))"
     elif column_type == "VARCHAR":
-        typed = text
+        # Ids and codes are compared exactly downstream: surrounding spaces are dropped.
+        typed = f"trim({text})"
         if column_name in table.values:
             var = f"liftlag_map_{table.name}_{column_name}"
             mapping = table.values[column_name]
             con.execute(f"SET VARIABLE {var} = map(?, ?)", [list(mapping.values()), list(mapping.keys())])
-            typed = f"coalesce(getvariable('{var}')[{text}], {text})"
+            typed = f"coalesce(getvariable('{var}')[trim({text})], trim({text}))"
     elif column_type == "TIMESTAMP":
         # A time with a UTC offset (text, or Parquet TIMESTAMPTZ) becomes UTC; a time without one
         # is kept as written. (The connection's time zone is UTC.)
@@ -198,14 +214,15 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         described = _describe(con, reader, table, files)
         found = [c for c, _ in described]
         found_types = dict(described)
+        table = _match_names_loosely(table, contract, found)
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
         extras = [c for c in found if c not in mapped and c != "_source_file"] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
-        # Small tables keep file order, so "the first row" of a repeated key is the file's first.
-        con.execute(f"SET preserve_insertion_order = {'false' if name == 'transactions' else 'true'}")
+        # Rows keep file order, so row numbers in the rejects (and "the first copy") are the files'.
+        con.execute("SET preserve_insertion_order = true")
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
             con.execute(_stage_sql(con, table, contract, reader, read_types, extras))
@@ -288,13 +305,21 @@ def _define_staged_view(con, contract: InputTable, extras: list[str]) -> None:
     )
 
 
-def staged_union_sql() -> str:
-    """The ``staged_all`` view: the row-level facts of every table, for table-independent rules."""
+def staged_union_sql() -> list[str]:
+    """``staged_all``: the row-level facts of every table, for table-independent rules; and
+    ``staged_all_sources``: each row's file and original values, for the rejects."""
     parts = [
         f"SELECT '{name}' AS table_name, _row_id, _missing, _unparseable, _row_hash, _raw_values FROM {q('staged_' + name)}"
         for name in INPUT_TABLES
     ]
-    return "CREATE OR REPLACE TEMP VIEW staged_all AS " + " UNION ALL ".join(parts)
+    with_files = [
+        f"SELECT '{name}' AS table_name, _row_id, _source_file, _raw_values FROM {q('staged_' + name)}"
+        for name in INPUT_TABLES
+    ]
+    return [
+        "CREATE OR REPLACE TEMP VIEW staged_all AS " + " UNION ALL ".join(parts),
+        "CREATE OR REPLACE TEMP VIEW staged_all_sources AS " + " UNION ALL ".join(with_files),
+    ]
 
 
 def fingerprint_files(files) -> list[dict]:

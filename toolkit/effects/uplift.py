@@ -43,7 +43,6 @@ BOOSTING = {
     "l2_regularization": 1.0,
     "early_stopping": False,
 }
-SINGLE_THREAD_BELOW = 200_000  # rows; smaller fits run faster on one thread than with contention
 MAX_FIT_ROWS = 250_000  # per fold: larger training folds are fitted on a seeded random sample of this size
 
 
@@ -92,21 +91,24 @@ class TLearner:
     boosting : dict, optional
         Settings of the gradient-boosting models (default :data:`BOOSTING`).
     seed : int, default=0
+    threads : int, default=1
+        OpenMP threads of the model fits (0: no limit).
 
     Attributes
     ----------
     treated_model_, holdout_model_ : fitted models (``predict`` gives E[Y | x] in each arm)
     """
 
-    def __init__(self, *, boosting: dict | None = None, seed: int = 0):
+    def __init__(self, *, boosting: dict | None = None, seed: int = 0, threads: int | None = 1):
         self.boosting = boosting
         self.seed = seed
+        self.threads = threads
 
     def fit(self, features, outcome, treated) -> "TLearner":
         x, y, t = _check_inputs(features, outcome, treated)
         params = {**BOOSTING, **(self.boosting or {})}
         self.binary_ = bool(np.isin(y, (0.0, 1.0)).all())
-        with _thread_limit(None, len(y)):
+        with _thread_limit(self.threads, len(y)):
             self.treated_model_ = _fit_outcome_model(x[t], y[t], binary=self.binary_, seed=self.seed, boosting=params)
             self.holdout_model_ = _fit_outcome_model(x[~t], y[~t], binary=self.binary_, seed=self.seed + 1, boosting=params)
         return self
@@ -114,12 +116,12 @@ class TLearner:
     def predict_baseline(self, features) -> np.ndarray:
         """Expected outcome without the coupon (for a 0/1 outcome: the purchase probability)."""
         x = np.asarray(features, dtype=float)
-        with _thread_limit(None, len(x)):
+        with _thread_limit(self.threads, len(x)):
             return self.holdout_model_.predict(x)
 
     def predict(self, features) -> np.ndarray:
         x = np.asarray(features, dtype=float)
-        with _thread_limit(None, len(x)):
+        with _thread_limit(self.threads, len(x)):
             return self.treated_model_.predict(x) - self.holdout_model_.predict(x)
 
 
@@ -140,16 +142,17 @@ class XLearner:
     treated_effect_model_, holdout_effect_model_ : fitted regressors of the imputed effects.
     """
 
-    def __init__(self, *, boosting: dict | None = None, seed: int = 0):
+    def __init__(self, *, boosting: dict | None = None, seed: int = 0, threads: int | None = 1):
         self.boosting = boosting
         self.seed = seed
+        self.threads = threads
 
     def fit(self, features, outcome, treated, *, outcome_models: TLearner | None = None) -> "XLearner":
         """Fit; ``outcome_models`` re-uses a T-learner already fitted on the same rows."""
         x, y, t = _check_inputs(features, outcome, treated)
         params = {**BOOSTING, **(self.boosting or {})}
-        first = outcome_models or TLearner(boosting=self.boosting, seed=self.seed).fit(x, y, t)
-        with _thread_limit(None, len(y)):
+        first = outcome_models or TLearner(boosting=self.boosting, seed=self.seed, threads=self.threads).fit(x, y, t)
+        with _thread_limit(self.threads, len(y)):
             imputed_treated = y[t] - first.holdout_model_.predict(x[t])
             imputed_holdout = first.treated_model_.predict(x[~t]) - y[~t]
             self.treated_effect_model_ = _fit_regressor(x[t], imputed_treated, seed=self.seed + 2, boosting=params)
@@ -161,7 +164,7 @@ class XLearner:
     def predict(self, features) -> np.ndarray:
         x = np.asarray(features, dtype=float)
         g = self.treated_share_
-        with _thread_limit(None, len(x)):
+        with _thread_limit(self.threads, len(x)):
             return g * self.holdout_effect_model_.predict(x) + (1 - g) * self.treated_effect_model_.predict(x)
 
 
@@ -175,9 +178,10 @@ class TransformedOutcomeLearner:
     model_ : fitted regressor
     """
 
-    def __init__(self, *, boosting: dict | None = None, seed: int = 0):
+    def __init__(self, *, boosting: dict | None = None, seed: int = 0, threads: int | None = 1):
         self.boosting = boosting
         self.seed = seed
+        self.threads = threads
 
     def fit(self, features, outcome, treated) -> "TransformedOutcomeLearner":
         x, y, t = _check_inputs(features, outcome, treated)
@@ -185,14 +189,14 @@ class TransformedOutcomeLearner:
         if not 0 < p < 1:
             raise AnalysisError("the transformed outcome needs both arms in the rows fitted")
         z = y * (t.astype(float) - p) / (p * (1 - p))
-        with _thread_limit(None, len(y)):
+        with _thread_limit(self.threads, len(y)):
             self.model_ = _fit_regressor(x, z, seed=self.seed + 4, boosting={**BOOSTING, **(self.boosting or {})})
         self.treated_share_ = p
         return self
 
     def predict(self, features) -> np.ndarray:
         x = np.asarray(features, dtype=float)
-        with _thread_limit(None, len(x)):
+        with _thread_limit(self.threads, len(x)):
             return self.model_.predict(x)
 
 
@@ -208,7 +212,8 @@ def _check_inputs(features, outcome, treated):
 
 
 def _thread_limit(threads: int | None, rows: int):
-    if threads is None and rows >= SINGLE_THREAD_BELOW:
+    """OpenMP thread limit for the fits (one thread unless asked otherwise; ``threads=0``: no limit)."""
+    if threads == 0:
         return nullcontext()
     from threadpoolctl import threadpool_limits
 
@@ -227,9 +232,9 @@ class UpliftModel:
         Seeds the fold split and the models.
     boosting : dict, optional
         Overrides of the gradient-boosting settings (:data:`BOOSTING`).
-    threads : int, optional
-        OpenMP threads for the model fits; by default one thread below 200,000 rows (faster on a
-        busy machine), all above.
+    threads : int, default=1
+        OpenMP threads for the model fits. One by default: these small models gain little from
+        more, and on a busy machine OpenMP threads waiting for a core slow them down many times.
     max_fit_rows : int, default=250_000
         A training fold larger than this is fitted on a seeded random sample of this many rows
         (the small trees gain nothing from more); every customer is still scored out-of-fold.
@@ -254,7 +259,7 @@ class UpliftModel:
     """
 
     def __init__(self, *, learners: tuple[str, ...] | list[str] = LEARNERS, folds: int = 5,
-                 seed: int = 20261201, boosting: dict | None = None, threads: int | None = None,
+                 seed: int = 20261201, boosting: dict | None = None, threads: int | None = 1,
                  max_fit_rows: int = MAX_FIT_ROWS):
         self.learners = learners
         self.folds = folds
@@ -297,15 +302,15 @@ class UpliftModel:
                     train = np.sort(sampler.choice(train, self.max_fit_rows, replace=False))
                     self.sampled_ = True
                 fitted = {}
-                t_model = TLearner(boosting=self.boosting, seed=seed).fit(x[train], y[train], t[train])
+                t_model = TLearner(boosting=self.boosting, seed=seed, threads=self.threads).fit(x[train], y[train], t[train])
                 baseline[test] = t_model.predict_baseline(x[test])
                 if "t_learner" in self.learners:
                     fitted["t_learner"] = t_model
                 if "x_learner" in self.learners:
-                    fitted["x_learner"] = XLearner(boosting=self.boosting, seed=seed).fit(
+                    fitted["x_learner"] = XLearner(boosting=self.boosting, seed=seed, threads=self.threads).fit(
                         x[train], y[train], t[train], outcome_models=t_model)
                 if "transformed_outcome" in self.learners:
-                    fitted["transformed_outcome"] = TransformedOutcomeLearner(boosting=self.boosting, seed=seed).fit(
+                    fitted["transformed_outcome"] = TransformedOutcomeLearner(boosting=self.boosting, seed=seed, threads=self.threads).fit(
                         x[train], y[train], t[train])
                 for name, model in fitted.items():
                     scores[name][test] = model.predict(x[test])

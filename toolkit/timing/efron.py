@@ -39,17 +39,25 @@ class RiskTable:
 
 @dataclass(frozen=True)
 class SpellIndex:
-    """Where each spell falls on the event-time axis and in the pattern table (built once)."""
+    """Where each spell falls on the event-time axis and in the pattern table (built once).
+
+    ``mode`` is ``"patterns"`` when the covariates take few distinct values (the fit then works
+    on the event times x patterns table) and ``"spells"`` otherwise (risk-set sums are gathered
+    from the spells directly with cumulative sums; same result, cost linear in the spells).
+    """
 
     times: np.ndarray
+    covariates: np.ndarray
     patterns: np.ndarray
     pattern_of: np.ndarray
     first: np.ndarray
     last: np.ndarray
     event_time: np.ndarray  # index of the spell's event time, -1 when it ends without an event
+    mode: str
 
     @classmethod
-    def build(cls, start: np.ndarray, stop: np.ndarray, event: np.ndarray, covariates: np.ndarray) -> "SpellIndex":
+    def build(cls, start: np.ndarray, stop: np.ndarray, event: np.ndarray, covariates: np.ndarray,
+              *, mode: str | None = None) -> "SpellIndex":
         start = np.asarray(start, dtype=float)
         stop = np.asarray(stop, dtype=float)
         event = np.asarray(event, dtype=bool)
@@ -59,20 +67,20 @@ class SpellIndex:
         times = np.unique(stop[event])
         patterns, pattern_of = np.unique(covariates, axis=0, return_inverse=True)
         pattern_of = pattern_of.reshape(-1)
-        if (len(times) + 1) * len(patterns) > MAX_TABLE_CELLS:
-            raise ValueError(
-                f"{len(times)} event times x {len(patterns)} covariate patterns is too large a table; "
-                "bin the continuous covariates"
-            )
+        if mode is None:
+            cells = (len(times) + 1) * len(patterns)
+            mode = "patterns" if cells <= min(MAX_TABLE_CELLS, max(len(start), 100_000)) else "spells"
         first = np.searchsorted(times, start, side="right")
         last = np.searchsorted(times, stop, side="right")  # at risk at times[first:last]
         event_time = np.where(event, np.searchsorted(times, stop, side="left"), -1)
-        return cls(times, patterns, pattern_of, first, last, event_time)
+        return cls(times, covariates, patterns, pattern_of, first, last, event_time, mode)
 
-    def table(self, weights: np.ndarray | None = None) -> RiskTable:
-        """Sum the spells' (replication) weights into the risk table."""
-        m, p = len(self.times), len(self.patterns)
+    def table(self, weights: np.ndarray | None = None) -> "RiskTable | WeightedSpells":
+        """The fit's input for these (replication) weights: a risk table, or the weighted spells."""
         w = np.ones(len(self.first)) if weights is None else np.asarray(weights, dtype=float)
+        if self.mode == "spells":
+            return WeightedSpells(self, w)
+        m, p = len(self.times), len(self.patterns)
         size = (m + 1) * p
         opened = np.bincount(self.first * p + self.pattern_of, weights=w, minlength=size)
         closed = np.bincount(self.last * p + self.pattern_of, weights=w, minlength=size)
@@ -85,6 +93,18 @@ class SpellIndex:
 
 
 @dataclass(frozen=True)
+class WeightedSpells:
+    """Spells with replication weights, for the spell-by-spell computation of the sums."""
+
+    index: SpellIndex
+    weights: np.ndarray
+
+    @property
+    def patterns(self) -> np.ndarray:  # the number of covariates is all fit_efron needs from it
+        return self.index.covariates
+
+
+@dataclass(frozen=True)
 class EfronFit:
     params: np.ndarray
     log_likelihood: float
@@ -94,33 +114,72 @@ class EfronFit:
     step_norm: float
 
 
-def efron_terms(table: RiskTable, beta: np.ndarray, penalizer: float = 0.0):
-    """Log partial likelihood, score and information at ``beta`` (Efron ties)."""
+def _outer(x: np.ndarray) -> np.ndarray:
+    return (x[:, :, None] * x[:, None, :]).reshape(len(x), -1)
+
+
+def _sums_from_table(table: RiskTable, beta: np.ndarray):
     x = table.patterns
+    k = x.shape[1]
     eta = x @ beta
     shift = eta.max() if len(eta) else 0.0
-    risk = np.exp(eta - shift)  # a common factor cancels in every ratio below
+    risk = np.exp(eta - shift)  # a common factor cancels in every ratio
     n, d = table.at_risk, table.events
     deaths = np.rint(d.sum(axis=1)).astype(np.int64)
     keep = deaths > 0
     n, d, deaths = n[keep], d[keep], deaths[keep]
-    r0 = n @ risk
-    r1 = n @ (risk[:, None] * x)
-    r2 = np.einsum("tp,p,pa,pb->tab", n, risk, x, x, optimize=True)
-    e0 = d @ risk
-    e1 = d @ (risk[:, None] * x)
-    e2 = np.einsum("tp,p,pa,pb->tab", d, risk, x, x, optimize=True)
+    rx, rxx = risk[:, None] * x, risk[:, None] * _outer(x)
+    r0, r1, r2 = n @ risk, n @ rx, (n @ rxx).reshape(-1, k, k)
+    e0, e1, e2 = d @ risk, d @ rx, (d @ rxx).reshape(-1, k, k)
+    event_x = (d @ x).sum(axis=0)
+    return r0, r1, r2, e0, e1, e2, event_x, deaths, shift
+
+
+def _sums_from_spells(spells: WeightedSpells, beta: np.ndarray):
+    index, w = spells.index, spells.weights
+    x = index.covariates
+    n_spells, k = x.shape
+    m = len(index.times)
+    eta = x @ beta
+    shift = eta.max() if len(eta) else 0.0
+    risk = w * np.exp(eta - shift)
+    values = np.column_stack([risk, risk[:, None] * x, risk[:, None] * _outer(x)])
+    q = values.shape[1]
+    columns = np.arange(q)
+    size = (m + 1) * q
+    opened = np.bincount((index.first[:, None] * q + columns).ravel(), weights=values.ravel(), minlength=size)
+    closed = np.bincount((index.last[:, None] * q + columns).ravel(), weights=values.ravel(), minlength=size)
+    at_risk = np.cumsum((opened - closed).reshape(m + 1, q), axis=0)[:m]
+    has_event = (index.event_time >= 0) & (w > 0)
+    et = index.event_time[has_event]
+    tied = np.bincount((et[:, None] * q + columns).ravel(), weights=values[has_event].ravel(),
+                       minlength=m * q).reshape(m, q)
+    deaths = np.rint(np.bincount(et, weights=w[has_event], minlength=m)).astype(np.int64)
+    event_x = (w[has_event, None] * x[has_event]).sum(axis=0)
+    keep = deaths > 0
+    at_risk, tied, deaths = at_risk[keep], tied[keep], deaths[keep]
+    r0, r1, r2 = at_risk[:, 0], at_risk[:, 1:1 + k], at_risk[:, 1 + k:].reshape(-1, k, k)
+    e0, e1, e2 = tied[:, 0], tied[:, 1:1 + k], tied[:, 1 + k:].reshape(-1, k, k)
+    return r0, r1, r2, e0, e1, e2, event_x, deaths, shift
+
+
+def efron_terms(table, beta: np.ndarray, penalizer: float = 0.0):
+    """Log partial likelihood, score and information at ``beta`` (Efron ties)."""
+    sums = _sums_from_spells(table, beta) if isinstance(table, WeightedSpells) else _sums_from_table(table, beta)
+    r0, r1, r2, e0, e1, e2, event_x, deaths, shift = sums
     # Efron: the l-th of D tied events (l = 0..D-1) sees the risk set less l/D of the tied risk.
     time_of = np.repeat(np.arange(len(deaths)), deaths)
     fraction = (np.arange(deaths.sum()) - np.repeat(np.cumsum(deaths) - deaths, deaths)) / np.repeat(deaths, deaths)
     denom = r0[time_of] - fraction * e0[time_of]
     num1 = r1[time_of] - fraction[:, None] * e1[time_of]
-    num2 = r2[time_of] - fraction[:, None, None] * e2[time_of]
-    event_x = (d @ x).sum(axis=0)
-    log_lik = float(event_x @ beta - np.log(denom).sum() - shift * len(denom))
     mean = num1 / denom[:, None]
+    # sum over tie terms of (r2 - f e2)/denom, grouped by time to keep the arrays small
+    inv = np.bincount(time_of, weights=1.0 / denom, minlength=len(deaths))
+    frac_inv = np.bincount(time_of, weights=fraction / denom, minlength=len(deaths))
+    second = np.einsum("t,tab->ab", inv, r2) - np.einsum("t,tab->ab", frac_inv, e2)
+    log_lik = float(event_x @ beta - np.log(denom).sum() - shift * len(denom))
     score = event_x - mean.sum(axis=0)
-    information = (num2 / denom[:, None, None]).sum(axis=0) - np.einsum("ta,tb->ab", mean, mean)
+    information = second - mean.T @ mean
     if penalizer:
         log_lik -= 0.5 * penalizer * float(beta @ beta)
         score = score - penalizer * beta
@@ -129,7 +188,7 @@ def efron_terms(table: RiskTable, beta: np.ndarray, penalizer: float = 0.0):
 
 
 def fit_efron(
-    table: RiskTable,
+    table,
     *,
     initial: np.ndarray | None = None,
     penalizer: float = 0.0,
@@ -140,6 +199,7 @@ def fit_efron(
     k = table.patterns.shape[1]
     beta = np.zeros(k) if initial is None else np.asarray(initial, dtype=float).copy()
     log_lik, score, info = efron_terms(table, beta, penalizer)
+    slack = 1e-10 * max(abs(log_lik), 1.0)
     step_norm = np.inf
     converged = False
     iteration = 0
@@ -148,11 +208,17 @@ def fit_efron(
             step = np.linalg.solve(info, score)
         except np.linalg.LinAlgError:
             step = np.linalg.lstsq(info, score, rcond=None)[0]
+        if np.max(np.abs(step)) < tol:
+            beta = beta + step
+            step_norm = float(np.max(np.abs(step)))
+            converged = True
+            log_lik, score, info = efron_terms(table, beta, penalizer)
+            break
         scale = 1.0
         while True:
             candidate = beta + scale * step
             new_ll, new_score, new_info = efron_terms(table, candidate, penalizer)
-            if np.isfinite(new_ll) and new_ll >= log_lik - 1e-12:
+            if np.isfinite(new_ll) and new_ll >= log_lik - slack:
                 break
             scale /= 2
             if scale < 1e-6:

@@ -1,0 +1,78 @@
+"""``liftlag campaign``: one campaign's readout (or every targeted campaign's), tables and HTML.
+
+Wired into the ``liftlag`` parser by ``toolkit.commands.register_all`` through :func:`register`.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+from ..errors import AnalysisError, ConfigError
+
+DEFAULT_OUT = "results"
+
+
+def register(sub, config_arg) -> None:
+    """Add the ``campaign`` subcommand to the ``liftlag`` parser."""
+    p = sub.add_parser("campaign", help="one campaign's readout: incremental buyers, pull-forward, uplift targeting (tables + HTML)")
+    p.add_argument("promotion_id", nargs="?", metavar="PROMOTION_ID", help="the targeted promotion to read out")
+    config_arg(p)
+    p.add_argument("--all", action="store_true", help="every targeted promotion with assigned customers")
+    p.add_argument("--out", default=DEFAULT_OUT, help=f"output folder (default: ./{DEFAULT_OUT})")
+    p.set_defaults(handler=run_command)
+
+
+def run_command(args) -> int:
+    from .. import config, workspace
+    from ..cli import console, err_console
+    from .api import analyse_campaign, run_campaigns, write_campaign
+
+    if bool(args.promotion_id) == bool(args.all):
+        raise ConfigError("give one PROMOTION_ID or --all (not both, not neither); "
+                          "`liftlag campaign --all -c liftlag.toml` reads out every targeted campaign")
+    settings = config.load(args.config)
+    out = Path(args.out)
+    if args.all:
+        started = time.perf_counter()
+        facts = run_campaigns(settings, out, console=console)
+        for pid, reason in facts["skipped"].items():
+            err_console.print(f"[yellow]skipped {pid}:[/] {reason}")
+        if not facts["campaigns"]:
+            raise AnalysisError("no targeted campaign could be analysed" + (
+                "" if facts["skipped"] else ": the workspace has no targeted promotion with assigned customers"))
+        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{out}[/]")
+        return 0
+    con = workspace.connect(settings)
+    try:
+        readout = analyse_campaign(con, settings, args.promotion_id)
+    finally:
+        con.close()
+    paths = write_campaign(readout, out)
+    _print_summary(console, readout)
+    for level, message in readout.notes:
+        if level == "warning":
+            err_console.print(f"[yellow]note:[/] {message}")
+    html = [p for p in paths if p.suffix == ".html"]
+    console.print(f"readout: [bold]{html[0] if html else out}[/] (tables beside it)")
+    return 0
+
+
+def _print_summary(console, readout) -> None:
+    from rich.table import Table
+
+    status = readout.randomisation_check
+    colour = {"passed": "green", "not run": "yellow"}.get(status, "bold red")
+    table = Table(title=f"campaign {readout.promotion_id}: randomisation check [{colour}]{status}[/]")
+    for col in ("outcome", "window", "lift", "interval", "relative lift"):
+        table.add_column(col, justify="left" if col in ("outcome", "window") else "right")
+    summary = readout.summary
+    for row in summary.itertuples():
+        if row.window == "after" and row.outcome != "orders":
+            continue
+        if row.outcome == "buyers":
+            lift, ci = f"{row.lift * 100:+.1f} pts", f"{row.lift_ci_low * 100:+.1f} to {row.lift_ci_high * 100:+.1f}"
+        else:
+            lift, ci = f"{row.lift:+.3g}", f"{row.lift_ci_low:+.3g} to {row.lift_ci_high:+.3g}"
+        table.add_row(row.outcome, row.window, lift, ci, f"{row.relative_lift:+.1%}" if row.relative_lift == row.relative_lift else "")
+    console.print(table)

@@ -1,0 +1,184 @@
+"""Build the timing analysis's inputs in SQL: purchase days, spells, cells, gap counts, the sample.
+
+The SQL lives in ``sql/timing/`` (one table or view per file, named as the file). It runs on a
+cursor of the workspace connection, so every table it makes is a temporary table private to that
+cursor and nothing is written to the workspace. Values are bound as DuckDB variables (``SET
+VARIABLE name = ?``) and small inputs computed in Python (the expected campaign starts, the
+periods of the discrete-time model) are registered as relations, never formatted into SQL text.
+
+Order of the files (each reads only the panels, the checked inputs and earlier ones):
+``timing_purchase_days`` -> ``timing_calendar`` -> ``timing_customer_changes`` ->
+``timing_spells`` (a view) -> ``timing_cells``, ``timing_gap_counts``, ``timing_cox_sample``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import date
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pandas as pd
+
+from ..errors import AnalysisError, DataError
+
+SQL_DIR = Path(__file__).resolve().parents[2] / "sql" / "timing"
+ORDER = (
+    "timing_purchase_days",
+    "timing_calendar",
+    "timing_customer_changes",
+    "timing_spells",
+    "timing_cells",
+    "timing_gap_counts",
+    "timing_cox_sample",
+)
+EPOCH = date(1970, 1, 1)
+COVARIATES = ("promotion_available", "in_dip", "in_dip_during_promotion", "in_anticipation", "coupons_received")
+DIP_AFTER = ("targeted", "any")
+
+
+@dataclass(frozen=True)
+class SpellOptions:
+    """What the SQL needs to know (from ``settings.timing`` and the cadence)."""
+
+    dip_days: int = 21
+    anticipation_days: int = 7
+    min_coupons: int = 2
+    coupons_cap: int = 10
+    n_blocks: int = 64
+    seed: int = 20261201
+    sample_customers: int = 20000
+    dip_after: str = "targeted"
+    horizon_days: int = 90
+    rate_classes: int = 8
+    min_history_days: int = 28
+
+
+def day_number(day: date) -> int:
+    """Days since 1970-01-01, the day numbering of the timing SQL."""
+    return (pd.Timestamp(day).date() - EPOCH).days
+
+
+def periods_table(horizon_days: int, max_days: int) -> pd.DataFrame:
+    """Periods of the discrete-time baseline, in days since the purchase day (inclusive bounds).
+
+    Weekly up to the horizon (rounded up to whole weeks), then four-weekly up to a year, then
+    one period per further year: the baseline hazard changes fast early on and slowly later.
+    """
+    edges = list(range(0, 7 * int(np.ceil(max(horizon_days, 7) / 7)) + 1, 7))
+    while edges[-1] < 364:
+        edges.append(edges[-1] + 28)
+    while edges[-1] < max_days:
+        edges.append(edges[-1] + 364)
+    rows = [{"period": i, "period_from": edges[i] + 1, "period_to": edges[i + 1]} for i in range(len(edges) - 1)]
+    return pd.DataFrame(rows)
+
+
+def sql_text(name: str) -> str:
+    path = SQL_DIR / f"{name}.sql"
+    if not path.is_file():
+        raise AnalysisError(f"timing SQL file {path} is missing; reinstall liftlag from its source tree")
+    return path.read_text(encoding="utf-8")
+
+
+class TimingTables:
+    """The timing SQL run on a private cursor; fetch its outputs as DataFrames.
+
+    Parameters
+    ----------
+    con : duckdb.DuckDBPyConnection
+        Workspace connection (panels, with the checked inputs attached as ``checked``).
+    options : SpellOptions
+    expected_starts : list of date
+        Expected campaign starts (empty when the cadence is not regular).
+    """
+
+    def __init__(self, con: duckdb.DuckDBPyConnection, options: SpellOptions, expected_starts: list[date]) -> None:
+        if options.dip_after not in DIP_AFTER:
+            raise AnalysisError(f"dip_after must be one of {', '.join(DIP_AFTER)}, found {options.dip_after!r}")
+        self.options = options
+        self.cursor = con.cursor()
+        cur = self.cursor
+        for name, value in (
+            ("timing_n_blocks", int(options.n_blocks)),
+            ("timing_seed", int(options.seed)),
+            ("timing_dip_after", options.dip_after),
+            ("timing_dip_days", int(options.dip_days)),
+            ("timing_anticipation_days", int(options.anticipation_days)),
+            ("timing_min_coupons", int(options.min_coupons)),
+            ("timing_coupons_cap", int(options.coupons_cap)),
+            ("timing_sample_customers", int(options.sample_customers)),
+            ("timing_rate_classes", int(options.rate_classes)),
+            ("timing_min_history_days", int(options.min_history_days)),
+        ):
+            cur.execute(f"SET VARIABLE {name} = ?", [value])
+        starts = pd.DataFrame({"start_day": np.array([day_number(d) for d in expected_starts], dtype=np.int32)})
+        self._register("timing_expected_starts", starts)
+        cur.execute(sql_text("timing_purchase_days"))
+        n_days, max_gap = cur.execute(
+            "SELECT count(*), coalesce(max(gap_days), 0) FROM timing_purchase_days").fetchall()[0]
+        if not n_days:
+            raise DataError("purchase_gaps: no purchases; build the panels from an export with orders (liftlag build)")
+        periods = periods_table(options.horizon_days, int(max_gap))
+        self.periods = periods
+        days = np.arange(1, int(periods["period_to"].max()) + 1)
+        period_of = np.searchsorted(periods["period_to"].to_numpy(), days, side="left")
+        self._register("timing_periods", periods.astype("int32"))
+        self._register("timing_period_days", pd.DataFrame({"days_since": days, "period": period_of}).astype("int32"))
+        for name in ORDER[1:]:
+            cur.execute(sql_text(name))
+
+    def _register(self, name: str, frame: pd.DataFrame) -> None:
+        self.cursor.register(f"{name}_frame", frame)
+        self.cursor.execute(f"CREATE OR REPLACE TEMP TABLE {name} AS SELECT * FROM {name}_frame")
+        self.cursor.unregister(f"{name}_frame")
+
+    # -- outputs ----------------------------------------------------------------------------------
+    def cells(self) -> pd.DataFrame:
+        return self.cursor.execute("SELECT * FROM timing_cells").df()
+
+    def gap_counts(self) -> pd.DataFrame:
+        return self.cursor.execute("SELECT * FROM timing_gap_counts").df()
+
+    def cox_spells(self) -> pd.DataFrame:
+        """Spells of the sampled customers (customer ids stay inside the fit, never in outputs)."""
+        return self.cursor.execute(
+            "SELECT s.* FROM timing_spells AS s SEMI JOIN timing_cox_sample AS c ON s.customer_id = c.customer_id "
+            "ORDER BY s.customer_id, s.purchase_day, s.start_days"
+        ).df()
+
+    def customers_by_promotion(self) -> dict[str, int]:
+        """Customers with a followed-up deal purchase day on each promotion."""
+        rows = self.cursor.execute(
+            "SELECT promotion_id, count(DISTINCT customer_id) FROM timing_purchase_days "
+            "WHERE is_deal AND promotion_id IS NOT NULL AND gap_days > 0 GROUP BY promotion_id ORDER BY promotion_id"
+        ).fetchall()
+        return {str(pid): int(n) for pid, n in rows}
+
+    def sample_size(self) -> tuple[int, int]:
+        """(customers sampled for the Cox model, customers with a purchase)."""
+        sampled, population = self.cursor.execute(
+            "SELECT count(*), coalesce(max(population), 0) FROM timing_cox_sample").fetchall()[0]
+        return int(sampled), int(population)
+
+    def counts(self) -> dict[str, int]:
+        """What went in: customers, purchase days, merged same-day orders, days without follow-up."""
+        row = self.cursor.execute(
+            """
+            SELECT count(DISTINCT customer_id), count(*), sum(orders), sum(orders - 1),
+                   count(*) FILTER (WHERE gap_days = 0), count(*) FILTER (WHERE is_event)
+            FROM timing_purchase_days
+            """
+        ).fetchall()[0]
+        return {
+            "customers": int(row[0]),
+            "purchase_days": int(row[1]),
+            "orders": int(row[2]),
+            "same_day_orders_merged": int(row[3]),
+            "purchase_days_without_follow_up": int(row[4]),
+            "next_purchases_observed": int(row[5]),
+        }
+
+    def close(self) -> None:
+        self.cursor.close()
