@@ -180,7 +180,7 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
     con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
     con.execute(
-        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
+        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id HUGEINT, rule VARCHAR, "
         "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
     )
     promotions_ready = False
@@ -227,7 +227,7 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     ).df()
     examples = con.execute(
         "SELECT table_name AS \"table\", reason, row_id, source_file, detail, raw_values FROM ("
-        "SELECT r.table_name, r.reason, r._row_id AS row_id, s._source_file AS source_file, r.detail, s._raw_values AS raw_values, "
+        "SELECT r.table_name, r.reason, s._file_row AS row_id, s._source_file AS source_file, r.detail, s._raw_values AS raw_values, "
         "row_number() OVER (PARTITION BY r.table_name, r.reason ORDER BY r._row_id) AS n "
         "FROM rejected AS r INNER JOIN staged_all_sources AS s ON r.table_name = s.table_name AND r._row_id = s._row_id"
         ") WHERE n <= 3 ORDER BY 1, 2, 3"
@@ -275,7 +275,7 @@ def _write_rejects(con) -> None:
     parts = []
     for name in INPUT_TABLES:
         parts.append(
-            f"SELECT r.table_name, r._row_id AS row_id, s._source_file AS source_file, r.reason, r.detail, "
+            f"SELECT r.table_name, s._file_row AS row_id, s._source_file AS source_file, r.reason, r.detail, "
             f"r.all_reasons, s._raw_values AS raw_values FROM rejected AS r "
             f"INNER JOIN {q('staged_' + name)} AS s ON r._row_id = s._row_id WHERE r.table_name = '{name}'"
         )
@@ -286,9 +286,10 @@ def _write_rejects(con) -> None:
         "FROM warned GROUP BY ALL ORDER BY 1, 2"
     )
     con.execute(
-        "CREATE TABLE out.warning_rows AS SELECT table_name, _row_id AS row_id, rule, detail FROM ("
-        "SELECT *, row_number() OVER (PARTITION BY table_name, rule ORDER BY _row_id) AS n FROM warned) "
-        f"WHERE n <= {WARNING_EXAMPLES}"
+        "CREATE TABLE out.warning_rows AS SELECT w.table_name, s._file_row AS row_id, s._source_file AS source_file, "
+        "w.rule, w.detail FROM (SELECT *, row_number() OVER (PARTITION BY table_name, rule ORDER BY _row_id) AS n "
+        f"FROM warned) AS w INNER JOIN staged_all_sources AS s ON w.table_name = s.table_name AND w._row_id = s._row_id "
+        f"WHERE w.n <= {WARNING_EXAMPLES}"
     )
 
 

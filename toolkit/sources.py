@@ -74,7 +74,7 @@ def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[st
     files_expr = f"getvariable('{var}')"
     if table.format == "parquet":
         hive = "" if table.hive_partitioning is None else f", hive_partitioning = {str(table.hive_partitioning).lower()}"
-        return f"read_parquet({files_expr}, union_by_name = true, filename = '_source_file'{hive})"
+        return f"read_parquet({files_expr}, union_by_name = true, filename = '_source_file', file_row_number = true{hive})"
     if table.format == "csv":
         opts = ["all_varchar = true", f"header = {str(table.header).lower()}", "filename = '_source_file'", "union_by_name = true"]
         if table.delimiter is not None:
@@ -152,6 +152,18 @@ def _check_columns(settings: Settings, table: TableSettings, contract: InputTabl
     )
 
 
+def blank_test(raw: str, is_text: bool) -> str:
+    """SQL that is true when a value is missing: null, or text that is empty or only spaces.
+
+    trim() is costly on tens of millions of values, so it runs only on text that starts with a
+    space (CASE evaluates a branch only for the rows that reach it).
+    """
+    if not is_text:
+        return f"({raw} IS NULL)"
+    return (f"(CASE WHEN {raw} IS NULL OR {raw} = '' THEN true "
+            f"WHEN starts_with({raw}, ' ') THEN trim({raw}) = '' ELSE false END)")
+
+
 def _typed_expression(table: TableSettings, column_name: str, column_type: str, con: duckdb.DuckDBPyConnection,
                       raw_is_text: bool = True) -> tuple[str, str]:
     """(typed expression, raw-text expression) for one contract column, read as ``r_<column>``.
@@ -160,20 +172,23 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
     """
     raw = q(f"r_{column_name}")
     text = f"CAST({raw} AS VARCHAR)" if not raw_is_text else raw
-    blank = f"({raw} IS NULL OR trim({raw}) = '')" if raw_is_text else f"({raw} IS NULL)"
+    blank = blank_test(raw, raw_is_text)
+    # Text files pad values with spaces; typed files (Parquet) keep values as they were written.
+    trimmed = table.format == "csv" and raw_is_text
 
     if table.formats.get(column_name):
         var = f"liftlag_fmt_{table.name}_{column_name}"
         con.execute(f"SET VARIABLE {var} = ?", [table.formats[column_name]])
         typed = f"TRY_STRPTIME(trim({text}), getvariable('{var}'))"
     elif column_type == "VARCHAR":
-        # Ids and codes are compared exactly downstream: surrounding spaces are dropped.
-        typed = f"trim({text})"
+        # Ids and codes are compared exactly downstream: in text files, surrounding spaces are dropped.
+        value = f"trim({text})" if trimmed else text
+        typed = value
         if column_name in table.values:
             var = f"liftlag_map_{table.name}_{column_name}"
             mapping = table.values[column_name]
             con.execute(f"SET VARIABLE {var} = map(?, ?)", [list(mapping.values()), list(mapping.keys())])
-            typed = f"coalesce(getvariable('{var}')[trim({text})], trim({text}))"
+            typed = f"coalesce(getvariable('{var}')[{value}], {value})"
     elif column_type == "TIMESTAMP":
         # A time with a UTC offset (text, or Parquet TIMESTAMPTZ) becomes UTC; a time without one
         # is kept as written. (The connection's time zone is UTC.)
@@ -189,7 +204,8 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
 def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     cols = ", ".join(f"CAST(NULL AS {c.type}) AS {q(c.name)}" for c in contract.columns)
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS BIGINT) AS _row_id, "
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS HUGEINT) AS _row_id, "
+        f"CAST(NULL AS BIGINT) AS _file_row, "
         f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, "
         f"CAST(NULL AS UBIGINT) AS _row_hash, CAST(NULL AS VARCHAR) AS _raw_values WHERE false"
     )
@@ -218,26 +234,33 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
-        extras = [c for c in found if c not in mapped and c != "_source_file"] if contract.extra_columns else []
+        extras = [c for c in found if c not in mapped and c not in ("_source_file", "file_row_number")] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
-        # Rows keep file order, so row numbers in the rejects (and "the first copy") are the files'.
+        # Parquet is read again by each step that needs it (a scan costs less than holding tens
+        # of millions of rows); its rows are keyed by file and row number. CSV and DuckDB tables
+        # are read once into a temporary table, keyed by its row number; rows keep file order,
+        # so row numbers in the rejects (and "the first copy") are the files'.
+        lazy = table.format == "parquet"
         con.execute("SET preserve_insertion_order = true")
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
-            con.execute(_stage_sql(con, table, contract, reader, read_types, extras))
+            select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy)
+            kind = "VIEW" if lazy else "TABLE"
+            con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
+            rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:
             first = str(exc).strip().splitlines()[0]
             raise DataError(f"table {name}: cannot read {files[0]}: {first}") from None
         finally:
             con.execute("SET preserve_insertion_order = false")
-        rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
-        _define_staged_view(con, contract, extras)
+        _define_staged_view(con, contract, extras, lazy=lazy)
         infos[name] = SourceInfo(name, tuple(files), int(rows), tuple(found), tuple(extras))
     return infos
 
 
-def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, present: dict[str, str], extras: list[str]) -> str:
+def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, present: dict[str, str], extras: list[str],
+               lazy: bool = False) -> str:
     """One pass over the files: typed columns plus the facts the checks need.
 
     ``present`` maps each contract column found to the DuckDB type it was read with. Text is
@@ -255,7 +278,7 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
         is_text = present[c.name].upper() == "VARCHAR"
         typed, text = _typed_expression(table, c.name, c.type, con, raw_is_text=is_text)
         typed_cols.append(f"{typed} AS {q(c.name)}")
-        blank = f"({raw} IS NULL OR trim({raw}) = '')" if is_text else f"({raw} IS NULL)"
+        blank = blank_test(raw, is_text)
         raw_texts.append(f"{q(c.name)} := {text}")
         if c.required:
             missing_parts.append((blank, c.name))
@@ -268,14 +291,16 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     missing = _names_where(missing_parts)
     unparseable = _names_where(unparseable_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
-    read = f"SELECT _source_file, {', '.join(renamed)} FROM {reader}"
+    key = ("(CAST(hash(_source_file) AS HUGEINT) * 1099511627776 + file_row_number) AS _row_key, "
+           "file_row_number + 1 AS _file_row, ") if lazy else ""
+    read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
     facts = f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable FROM ({typed})"
     problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' THEN {raw_struct} END AS _raw_problem "
                f"FROM ({facts})")
+    keys = "_row_key, _file_row, " if lazy else ""
     return (
-        f"CREATE OR REPLACE TEMP TABLE {q('stage_' + contract.name)} AS "
-        f"SELECT _source_file, {', '.join(names)}, _missing, _unparseable, _raw_problem, "
+        f"SELECT {keys}_source_file, {', '.join(names)}, _missing, _unparseable, _raw_problem, "
         f"hash({', '.join(names)}, _raw_problem) AS _row_hash FROM ({problem})"
     )
 
@@ -293,13 +318,15 @@ def _names_where(conditions: list[tuple[str, str]]) -> str:
     return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
 
 
-def _define_staged_view(con, contract: InputTable, extras: list[str]) -> None:
-    """``staged_<table>``: the stage with its row number, a row hash and the values as text."""
+def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool = False) -> None:
+    """``staged_<table>``: the stage with its row key, its row in the file, a row hash and the
+    values as text."""
     names = [c.name for c in contract.columns] + list(extras)
     cols = ", ".join(q(n) for n in names)
     as_text = f"CAST(struct_pack({', '.join(f'{q(n)} := {q(n)}' for n in names)}) AS VARCHAR)"
+    keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS HUGEINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT rowid + 1 AS _row_id, "
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
         f"_source_file, {cols}, _missing, _unparseable, _row_hash, "
         f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name)}"
     )
@@ -309,11 +336,11 @@ def staged_union_sql() -> list[str]:
     """``staged_all``: the row-level facts of every table, for table-independent rules; and
     ``staged_all_sources``: each row's file and original values, for the rejects."""
     parts = [
-        f"SELECT '{name}' AS table_name, _row_id, _missing, _unparseable, _row_hash, _raw_values FROM {q('staged_' + name)}"
+        f"SELECT '{name}' AS table_name, _row_id, _file_row, _missing, _unparseable, _row_hash, _raw_values FROM {q('staged_' + name)}"
         for name in INPUT_TABLES
     ]
     with_files = [
-        f"SELECT '{name}' AS table_name, _row_id, _source_file, _raw_values FROM {q('staged_' + name)}"
+        f"SELECT '{name}' AS table_name, _row_id, _file_row, _source_file, _raw_values FROM {q('staged_' + name)}"
         for name in INPUT_TABLES
     ]
     return [

@@ -6,11 +6,11 @@
 -- Reads: staged_promotions, staged_customers, staged_products
 -- Parameters: none
 WITH keyed AS (
-    SELECT 'promotions' AS table_name, _row_id, promotion_id AS key_value FROM staged_promotions
+    SELECT 'promotions' AS table_name, _row_id, _file_row, promotion_id AS key_value FROM staged_promotions
     UNION ALL
-    SELECT 'customers', _row_id, customer_id FROM staged_customers
+    SELECT 'customers', _row_id, _file_row, customer_id FROM staged_customers
     UNION ALL
-    SELECT 'products', _row_id, product_id FROM staged_products
+    SELECT 'products', _row_id, _file_row, product_id FROM staged_products
 ),
 
 ranked AS (
@@ -19,7 +19,7 @@ ranked AS (
         _row_id,
         key_value,
         row_number() OVER (PARTITION BY table_name, key_value ORDER BY _row_id) AS copy_number,
-        min(_row_id) OVER (PARTITION BY table_name, key_value) AS first_row_id
+        first_value(_file_row) OVER (PARTITION BY table_name, key_value ORDER BY _row_id) AS first_row
     FROM keyed
     WHERE key_value IS NOT NULL
 )
@@ -27,6 +27,6 @@ ranked AS (
 SELECT
     table_name,
     _row_id,
-    'key ' || key_value || ' already given in row ' || first_row_id AS detail
+    'key ' || key_value || ' already given in row ' || first_row AS detail
 FROM ranked
 WHERE copy_number > 1

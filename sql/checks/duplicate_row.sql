@@ -17,7 +17,7 @@ repeated_hashes AS (
 ),
 
 candidates AS (
-    SELECT s.table_name, s._row_id, s._raw_values
+    SELECT s.table_name, s._row_id, s._file_row, s._raw_values
     FROM staged_all AS s
     INNER JOIN repeated_hashes AS r
         ON s.table_name = r.table_name AND s._row_hash = r._row_hash
@@ -28,13 +28,13 @@ ranked AS (
         table_name,
         _row_id,
         row_number() OVER (PARTITION BY table_name, _raw_values ORDER BY _row_id) AS copy_number,
-        min(_row_id) OVER (PARTITION BY table_name, _raw_values) AS first_row_id
+        first_value(_file_row) OVER (PARTITION BY table_name, _raw_values ORDER BY _row_id) AS first_row
     FROM candidates
 )
 
 SELECT
     table_name,
     _row_id,
-    'same values as row ' || first_row_id AS detail
+    'same values as row ' || first_row AS detail
 FROM ranked
 WHERE copy_number > 1
