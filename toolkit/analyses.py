@@ -7,14 +7,18 @@ from __future__ import annotations
 
 from pathlib import Path
 
-RUNNERS: list = []  # callables (settings, out_dir, console) -> dict of facts for the manifest
+def runners() -> list:
+    """The analysis runners, in order: callables (settings, out_dir, console) -> facts for the manifest."""
+    from .effects.api import run_campaigns
+
+    return [run_campaigns]
 
 
 def run_all(settings, out: Path, console=None, timings: dict | None = None) -> list[str]:
     import time
 
     ran = []
-    for runner in RUNNERS:
+    for runner in runners():
         started = time.perf_counter()
         runner(settings, out, console)
         if timings is not None:

@@ -5,3 +5,6 @@ from __future__ import annotations
 
 def register_all(sub, config_arg) -> None:
     """Add every analysis subcommand to the ``liftlag`` parser."""
+    from .effects.command import register as register_campaign
+
+    register_campaign(sub, config_arg)

@@ -59,6 +59,10 @@ class CampaignSettings:
     seed: int = 20261201
     min_arm_size: int = 50
     alpha: float = 0.05
+    uplift_threshold: float = 0.02
+    baseline_threshold: float | None = None
+    target_lift: float | None = None
+    exclude_features: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -254,8 +258,14 @@ def _parse_section(path: Path, name: str, body: Any):
             for pid, share in value.items():
                 _share(path, f"{full}.{pid}", share)
             kwargs[key] = {str(k): float(v) for k, v in value.items()}
-        elif key in ("holdout_share", "untargeted_share", "margin_rate"):
+        elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
+                     "baseline_threshold", "target_lift"):
             kwargs[key] = _share(path, full, value)
+        elif key == "exclude_features":
+            _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")
+            for item in value:
+                _expect(path, full, item, str, "a list of column names (text)")
+            kwargs[key] = tuple(value)
         elif key == "alpha":
             a = _expect(path, full, value, (int, float), "a significance level between 0 and 1, e.g. 0.05")
             if not 0 < a < 1:

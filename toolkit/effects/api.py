@@ -120,7 +120,7 @@ def _promotion(con, promotion_id: str) -> dict:
 
 
 def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFrame | None = None,
-                     exclude_features: Iterable[str] = (), uplift_threshold: float = UPLIFT_THRESHOLD,
+                     exclude_features: Iterable[str] | None = None, uplift_threshold: float | None = None,
                      baseline_threshold: float | None = None, target_lift: float | None = None) -> CampaignReadout:
     """Analyse one targeted campaign from the workspace.
 
@@ -135,6 +135,8 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
         Only for a campaign without holdout: rows of eligible customers who were *not* assigned,
         with the ``campaign_windows`` feature and outcome columns; the readout then compares the
         treated customers with them by propensity weighting (not randomised; it says so).
+    Keyword arguments left at None take their value from ``settings.campaign``.
+
     exclude_features : sequence of str
         Panel columns or customer attributes never to use as model features (protected attributes).
     uplift_threshold : float, default=0.02
@@ -154,6 +156,11 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
         No assignments, or an arm is empty.
     """
     started = time.perf_counter()
+    campaign = settings.campaign
+    exclude_features = campaign.exclude_features if exclude_features is None else exclude_features
+    uplift_threshold = campaign.uplift_threshold if uplift_threshold is None else uplift_threshold
+    baseline_threshold = campaign.baseline_threshold if baseline_threshold is None else baseline_threshold
+    target_lift = campaign.target_lift if target_lift is None else target_lift
     promotion = _promotion(con, str(promotion_id))
     panel = con.execute(f"SELECT * FROM {PANEL} WHERE promotion_id = ? ORDER BY customer_id", [str(promotion_id)]).df()
     if panel.empty:
@@ -173,7 +180,18 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
                             baseline_threshold=baseline_threshold, target_lift=target_lift)
     readout.meta["seconds"] = {"read": read_seconds, **readout.meta["seconds"],
                                "total": time.perf_counter() - started}
+    readout.meta["input_fingerprint"] = _build_fingerprint(settings)
     return readout
+
+
+def _build_fingerprint(settings) -> str | None:
+    """The workspace build's fingerprint (shown in the readout's footer), when there is one."""
+    try:
+        from ..workspace import read_state
+
+        return read_state(settings).get("build", {}).get("fingerprint")
+    except Exception:  # a hand-made connection without a workspace folder
+        return None
 
 
 # --- the analysis on frames -----------------------------------------------------------------------

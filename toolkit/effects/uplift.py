@@ -23,7 +23,7 @@ from __future__ import annotations
 
 import math
 import time
-from contextlib import nullcontext
+from contextlib import contextmanager
 
 import numpy as np
 import pandas as pd
@@ -211,13 +211,31 @@ def _check_inputs(features, outcome, treated):
     return x, y, t
 
 
-def _thread_limit(threads: int | None, rows: int):
-    """OpenMP thread limit for the fits (one thread unless asked otherwise; ``threads=0``: no limit)."""
-    if threads == 0:
-        return nullcontext()
-    from threadpoolctl import threadpool_limits
+_CONTROLLER = None
+_LIMIT_DEPTH = 0
 
-    return threadpool_limits(limits=threads or 1, user_api="openmp")
+
+@contextmanager
+def _thread_limit(threads: int | None, rows: int):
+    """OpenMP thread limit for the fits (one thread unless asked otherwise; ``threads=0``: no limit).
+
+    The library scan of threadpoolctl is done once per process, and nested limits (a learner
+    fitted inside :class:`UpliftModel`) keep the outer one.
+    """
+    global _CONTROLLER, _LIMIT_DEPTH
+    if threads == 0 or _LIMIT_DEPTH:
+        yield
+        return
+    if _CONTROLLER is None:
+        from threadpoolctl import ThreadpoolController
+
+        _CONTROLLER = ThreadpoolController()
+    _LIMIT_DEPTH += 1
+    try:
+        with _CONTROLLER.limit(limits=threads or 1, user_api="openmp"):
+            yield
+    finally:
+        _LIMIT_DEPTH -= 1
 
 
 class UpliftModel:

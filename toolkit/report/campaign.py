@@ -67,6 +67,11 @@ def fmt_count(value) -> str:
     return f"{int(value):,}" if _finite(value) else "—"
 
 
+def fmt_whole(value) -> str:
+    """A count that may be estimated (negative, fractional): rounded to a whole number."""
+    return f"{float(value):,.0f}" if _finite(value) else "—"
+
+
 def fmt_interval(low, high, formatter) -> str:
     if not (_finite(low) and _finite(high)):
         return "—"
@@ -273,8 +278,8 @@ def _check_rows(checks: pd.DataFrame, small_cell: int, n_treated: int, n_holdout
         is_count = r.check == "sample_ratio"
         rows.append({
             "check": r.check.replace("_", " "), "feature": r.feature,
-            "treated": fmt_number(r.treated_value) if (is_count or not suppress) else SUPPRESSED,
-            "holdout": fmt_number(r.holdout_value) if (is_count or not suppress) else SUPPRESSED,
+            "treated": (fmt_count(r.treated_value) if is_count else fmt_number(r.treated_value)) if (is_count or not suppress) else SUPPRESSED,
+            "holdout": (fmt_count(r.holdout_value) if is_count else fmt_number(r.holdout_value)) if (is_count or not suppress) else SUPPRESSED,
             "statistic": fmt_number(r.statistic), "p_value": fmt_number(r.p_value, 2),
             "state": state, "detail": r.detail,
         })
@@ -304,8 +309,8 @@ def build_context(readout, *, small_cell: int | None = None) -> dict:
                          f"{fmt_points(key['lift'])} ({fmt_interval(key['lift_ci_low'], key['lift_ci_high'], fmt_points)})"))
     if economics is not None and not suppress_all:
         headline += [
-            ("Incremental buyers", f"{fmt_number(economics['incremental_buyers'])} "
-                                   f"({fmt_interval(economics['incremental_buyers_ci_low'], economics['incremental_buyers_ci_high'], fmt_number)})"),
+            ("Incremental buyers", f"{fmt_whole(economics['incremental_buyers'])} "
+                                   f"({fmt_interval(economics['incremental_buyers_ci_low'], economics['incremental_buyers_ci_high'], fmt_whole)})"),
             ("Net incremental margin, after discount and redemption cost (during + after)",
              f"{fmt_money(economics['net_incremental_margin'], currency)} "
              f"({fmt_interval(economics['net_incremental_margin_ci_low'], economics['net_incremental_margin_ci_high'], lambda v: fmt_money(v, currency))})"),
@@ -313,7 +318,7 @@ def build_context(readout, *, small_cell: int | None = None) -> dict:
             ("Discount paid to buyers who would have bought anyway", fmt_money(economics["discount_paid_to_non_incremental"], currency)),
             ("Return on discount", fmt_percent(economics["return_on_discount"], 0)),
         ]
-    if len(pull) and not suppress_all and _finite(pull["pull_forward_share"].iloc[0]):
+    if len(pull) and not suppress_all and _finite(pull["pull_forward_share_ci_low"].iloc[0]):
         headline.append(("Share of the orders bump given back after the campaign", fmt_percent(pull["pull_forward_share"].iloc[0], 0)))
     deciles = tables["uplift_deciles"]
     qini = tables["qini"]
@@ -378,9 +383,9 @@ def build_context(readout, *, small_cell: int | None = None) -> dict:
             "share": fmt_percent(pull["pull_forward_share"].iloc[0], 0) if len(pull) else "—",
             "share_ci": fmt_interval(pull["pull_forward_share_ci_low"].iloc[0], pull["pull_forward_share_ci_high"].iloc[0],
                                      lambda v: fmt_percent(v, 0)) if len(pull) else "—",
-            "net_orders": fmt_number(pull["net_incremental_orders"].iloc[0]) if len(pull) else "—",
-            "during_orders": fmt_number(pull["during_incremental_orders"].iloc[0]) if len(pull) else "—",
-            "after_orders": fmt_number(pull["after_incremental_orders"].iloc[0]) if len(pull) else "—",
+            "net_orders": fmt_whole(pull["net_incremental_orders"].iloc[0]) if len(pull) else "—",
+            "during_orders": fmt_whole(pull["during_incremental_orders"].iloc[0]) if len(pull) else "—",
+            "after_orders": fmt_whole(pull["after_incremental_orders"].iloc[0]) if len(pull) else "—",
             "note": pull["note"].iloc[0] if len(pull) else "",
         },
         "pull_chart": None if suppress_all else pull_forward_chart(pull, level),
