@@ -141,7 +141,7 @@ PANELS: dict[str, tuple[Column, ...]] = {
     ),
     "customer_periods": (
         Column("customer_id", "VARCHAR"),
-        Column("week_on", "DATE", description="Monday of the week; every week from the first order to the export's end"),
+        Column("week_on", "DATE", description="Monday of a week in which the customer ordered, received a coupon or was in a running campaign"),
         Column("orders", "BIGINT"),
         Column("net_amount", "DOUBLE"),
         Column("discount_amount", "DOUBLE"),
@@ -149,7 +149,7 @@ PANELS: dict[str, tuple[Column, ...]] = {
         Column("is_broadcast_running", "BOOLEAN", description="a broadcast promotion ran on some day of the week"),
         Column("is_coupon_active", "BOOLEAN", description="the customer held a treatment-arm coupon that ran this week"),
         Column("is_holdout_active", "BOOLEAN", description="the customer was in a holdout of a campaign running this week"),
-        Column("coupons_received", "BIGINT", description="treatment-arm assignments received before the week ends"),
+        Column("coupons_received", "BIGINT", description="treatment-arm assignments received up to the end of the week"),
     ),
     "purchase_gaps": (
         Column("customer_id", "VARCHAR"),

@@ -1,25 +1,26 @@
 -- rule: duplicate_row
 -- severity: reject
 -- An exact copy of an earlier row of the same table: the first copy is kept, the others rejected.
--- Rows are first grouped by a 64-bit hash of their original values, then compared value by value
--- within hash groups of two or more, so a hash collision never rejects a row.
--- Reads: staged_all
+-- Rows are grouped per table by a 64-bit hash of all their values; only the rows of repeated
+-- hashes are then compared value by value, so a hash collision never rejects a row.
+-- Reads: staged_transactions, staged_promotions, staged_assignments, staged_customers, staged_products
 -- Parameters: none
-WITH hashed AS (
-    SELECT table_name, _row_id, _row_hash FROM staged_all
-),
-
-repeated_hashes AS (
-    SELECT table_name, _row_hash
-    FROM hashed
-    GROUP BY table_name, _row_hash
-    HAVING count(*) > 1
+WITH repeated_hashes AS (
+    SELECT 'transactions' AS table_name, _row_hash FROM staged_transactions GROUP BY _row_hash HAVING count(*) > 1
+    UNION ALL
+    SELECT 'promotions', _row_hash FROM staged_promotions GROUP BY _row_hash HAVING count(*) > 1
+    UNION ALL
+    SELECT 'assignments', _row_hash FROM staged_assignments GROUP BY _row_hash HAVING count(*) > 1
+    UNION ALL
+    SELECT 'customers', _row_hash FROM staged_customers GROUP BY _row_hash HAVING count(*) > 1
+    UNION ALL
+    SELECT 'products', _row_hash FROM staged_products GROUP BY _row_hash HAVING count(*) > 1
 ),
 
 candidates AS (
     SELECT s.table_name, s._row_id, s._file_row, s._raw_values
     FROM staged_all AS s
-    INNER JOIN repeated_hashes AS r
+    SEMI JOIN repeated_hashes AS r
         ON s.table_name = r.table_name AND s._row_hash = r._row_hash
 ),
 

@@ -69,33 +69,29 @@ def test_orders_match_hand_computation(built):
 def test_customer_periods_match_hand_computation(built):
     got = frame(built, "SELECT * FROM customer_periods ORDER BY customer_id, week_on")
     got["week_on"] = pd.to_datetime(got["week_on"]).dt.date
-    # Weeks run from each customer's first order week to the export's last week (04-06):
-    # c1 from 02-02 (10 weeks), c2 from 02-16 (8 weeks), c3 from 01-12 (13 weeks).
-    assert got.groupby("customer_id").size().to_dict() == {"c1": 10, "c2": 8, "c3": 13}
-    by = got.set_index(["customer_id", "week_on"])
-    # Weeks with orders (all others have zero orders, amounts and deals):
-    busy = {
-        ("c1", D(2026, 2, 2)): (1, 30.0, 0.0, 0),
-        ("c1", D(2026, 3, 2)): (1, 8.0, 2.0, 1),
-        # o3 (Wed 03-18, 9.00, deal) and the return o4 (Sat 03-21, -10.00, not counted as an order)
-        ("c1", D(2026, 3, 16)): (1, -1.0, 1.0, 1),
-        ("c2", D(2026, 2, 16)): (1, 30.0, 0.0, 0),
-        ("c2", D(2026, 3, 2)): (1, 20.0, 0.0, 0),
-        ("c3", D(2026, 1, 12)): (1, 10.0, 0.0, 0),
-        ("c3", D(2026, 3, 16)): (1, 18.0, 2.0, 1),
-        ("c3", D(2026, 4, 6)): (1, 20.0, 0.0, 0),
+    # Rows: weeks with an order, a coupon arriving (PA's, Sun 03-01, in the week of 02-23) or a
+    # running campaign (PA in the week of 03-02). c2 is PA's holdout: no coupon arrives for it.
+    # week: (orders, net, discount, deals, broadcast, coupon active, holdout active, coupons received)
+    want = {
+        ("c1", D(2026, 2, 2)): (1, 30.0, 0.0, 0, False, False, False, 0),
+        ("c1", D(2026, 2, 23)): (0, 0.0, 0.0, 0, False, False, False, 1),
+        ("c1", D(2026, 3, 2)): (1, 8.0, 2.0, 1, False, True, False, 1),
+        # o3 (Wed 03-18, 9.00, deal) and the return o4 (Sat 03-21, -10.00, not an order); PB runs
+        ("c1", D(2026, 3, 16)): (1, -1.0, 1.0, 1, True, False, False, 1),
+        ("c2", D(2026, 2, 16)): (1, 30.0, 0.0, 0, False, False, False, 0),
+        ("c2", D(2026, 3, 2)): (1, 20.0, 0.0, 0, False, False, True, 0),
+        ("c3", D(2026, 1, 12)): (1, 10.0, 0.0, 0, False, False, False, 0),
+        ("c3", D(2026, 2, 23)): (0, 0.0, 0.0, 0, False, False, False, 1),
+        ("c3", D(2026, 3, 2)): (0, 0.0, 0.0, 0, False, True, False, 1),
+        ("c3", D(2026, 3, 16)): (1, 18.0, 2.0, 1, True, False, False, 1),
+        ("c3", D(2026, 4, 6)): (1, 20.0, 0.0, 0, False, False, False, 1),
     }
-    for key, row in by.iterrows():
-        want = busy.get(key, (0, 0.0, 0.0, 0))
-        assert (row.orders, row.net_amount, row.discount_amount, row.deal_orders) == pytest.approx(want), key
-        # PB runs in the week of 03-16 only, for everyone.
-        assert row.is_broadcast_running == (key[1] == D(2026, 3, 16)), key
-        # PA runs in the week of 03-02 only: c1 and c3 hold its coupon, c2 is its holdout.
-        assert row.is_coupon_active == (key[1] == D(2026, 3, 2) and key[0] in ("c1", "c3")), key
-        assert row.is_holdout_active == (key[1] == D(2026, 3, 2) and key[0] == "c2"), key
-        # The coupon arrived Sun 03-01, in the week of 02-23: counted from that week on.
-        received = 1 if key[0] in ("c1", "c3") and key[1] >= D(2026, 2, 23) else 0
-        assert row.coupons_received == received, key
+    assert [tuple(k) for k in got[["customer_id", "week_on"]].itertuples(index=False)] == list(want)
+    for row in got.itertuples(index=False):
+        expected = want[(row.customer_id, row.week_on)]
+        assert (row.orders, row.net_amount, row.discount_amount, row.deal_orders) == pytest.approx(expected[:4])
+        assert (row.is_broadcast_running, row.is_coupon_active, row.is_holdout_active) == expected[4:7]
+        assert row.coupons_received == expected[7]
 
 
 def test_purchase_gaps_match_hand_computation(built):
