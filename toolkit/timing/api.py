@@ -102,7 +102,7 @@ def analyse_timing(
     cadence_tolerance_days: int = 2,
     min_regular_share: float = 0.75,
     expected_starts: str = "cadence",
-    late_period_days: int = 28,
+    late_period_days: int = 14,
 ) -> TimingReadout:
     """Run the purchase-timing analysis on a workspace.
 
@@ -130,9 +130,9 @@ def analyse_timing(
         Also fit the Cox model on the customer sample (the discrete model always runs).
     cadence_tolerance_days, min_regular_share, expected_starts
         Passed to :class:`~toolkit.timing.schedule.CampaignCadence`.
-    late_period_days : int, default=28
-        The discrete model's proportional-hazards check compares hazard ratios before and after
-        this many days since the purchase.
+    late_period_days : int, default=14
+        The discrete model's proportional-hazards check compares hazard ratios up to and after
+        this many days since the purchase (inside dip_days, so the dip can be checked too).
 
     Returns
     -------
@@ -187,7 +187,7 @@ def analyse_timing(
                                                                 factors=factors, block_col="block", table="timing_cells")
             readout.discrete = discrete
             hazard_ratios.append(_ratios(discrete, MODEL_DISCRETE))
-            late = int(np.searchsorted(tables.periods["period_to"].to_numpy(), late_period_days, side="left"))
+            late = int(np.searchsorted(tables.periods["period_to"].to_numpy(), late_period_days, side="left")) + 1
             ph_rows.append(late_interaction_check(discrete, cells, late_period=late).assign(model=MODEL_DISCRETE))
             discrete_note = (f"customer-days at risk in {discrete.n_cells_} cells; baseline per period since the last "
                              f"purchase{' + calendar month' if factors else ''}; {discrete.interval_method_}")
@@ -276,8 +276,8 @@ def _gap_after_deal(readout, tables, timing, small_cell, n_blocks, effects, coun
             continue
         part = pd.concat([gap_counts[gap_counts["promotion_id"] == promotion_id].assign(group=promotion_id), full_price])
         try:
-            fit = TimeToNextOrder(**km_kwargs).fit(part, groups=(promotion_id, "full_price"), block_col="block",
-                                                   table=f"timing_gap_counts ({promotion_id})")
+            fit = TimeToNextOrder(**km_kwargs, curves=False).fit(
+                part, groups=(promotion_id, "full_price"), block_col="block", table=f"timing_gap_counts ({promotion_id})")
         except AnalysisError as exc:
             effects.append(_empty_row("gap_after_deal", promotion_id, MODEL_RMST, customers, level, str(exc)))
             continue
@@ -290,7 +290,6 @@ def _gap_after_deal(readout, tables, timing, small_cell, n_blocks, effects, coun
             "note": (f"RMST to {timing.horizon_days} days after a purchase on {promotion_id} minus after a full-price "
                      f"purchase; log-rank p={fit.logrank_['p_value']:.3g}; customer-block bootstrap"),
         })
-        curves.append(fit.curves_[fit.curves_["group"] == promotion_id].assign(scope=promotion_id))
     columns = ["scope", "group", "days", "survival", "ci_low", "ci_high", "at_risk"]
     return pd.concat(curves, ignore_index=True)[columns] if curves else pd.DataFrame(columns=columns)
 

@@ -18,6 +18,15 @@ MIN_EVENTS_PER_COVARIATE = 10
 variable rule of thumb for proportional-hazards and logistic models)."""
 
 
+def shown(value) -> str:
+    """A value as a user should read it in a message (no numpy type names)."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and value.is_integer():
+        return repr(int(value))
+    return repr(value)
+
+
 def check_columns(frame: pd.DataFrame, columns: Sequence[str], *, table: str) -> None:
     """Raise DataError naming every column of ``columns`` missing from ``frame``."""
     missing = [c for c in columns if c not in frame.columns]
@@ -66,7 +75,7 @@ def check_covariates_vary(frame: pd.DataFrame, columns: Sequence[str], *, table:
     """Raise AnalysisError naming every covariate that never varies."""
     constant = constant_columns(frame, columns)
     if constant:
-        listed = ", ".join(f"'{c}' (always {v!r})" for c, v in constant.items())
+        listed = ", ".join(f"'{c}' (always {shown(v)})" for c, v in constant.items())
         raise AnalysisError(
             f"{table}: covariate(s) {listed} never vary, so their hazard ratio cannot be estimated; "
             "drop them from the model or check how they are built (is the promotion schedule, the "

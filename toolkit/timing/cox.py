@@ -29,7 +29,7 @@ from scipy import stats
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
 from ._base import FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
-from .checks import check_columns, check_covariates_vary, check_enough_events, check_numeric
+from .checks import check_columns, check_covariates_vary, check_enough_events, check_numeric, collinear_columns, shown
 from .efron import SpellIndex, efron_terms, fit_efron
 
 ZERO_LENGTH = ("half_day", "raise")
@@ -84,8 +84,8 @@ class TimeVaryingCox(FittedMixin):
     >>> rossi = load_rossi().reset_index().assign(start=0)
     >>> cox = TimeVaryingCox().fit(rossi, id_col="index", start_col="start", stop_col="week",
     ...                            event_col="arrest", covariates=["fin", "age", "prio"])
-    >>> round(cox.params_["prio"], 3)
-    0.094
+    >>> round(float(cox.params_["prio"]), 3)
+    0.097
     """
 
     def __init__(
@@ -146,13 +146,21 @@ class TimeVaryingCox(FittedMixin):
         if backwards.any():
             first = data[backwards].iloc[0]
             raise DataError(
-                f"{table}: {int(backwards.sum())} spell(s) end before they start, e.g. {id_col}={first[id_col]!r} "
-                f"{start_col}={first[start_col]!r} {stop_col}={first[stop_col]!r}; rebuild the spells"
+                f"{table}: {int(backwards.sum())} spell(s) end before they start, e.g. {id_col}={shown(first[id_col])} "
+                f"{start_col}={shown(first[start_col])} {stop_col}={shown(first[stop_col])}; rebuild the spells"
             )
         data = self._handle_zero_length(data, start_col, stop_col, event_col, table)
         n_events = int(data[event_col].sum())
         check_enough_events(n_events, len(covariates), table=table)
         check_covariates_vary(data, covariates, table=table)
+        # A Cox model has no intercept but is blind to a constant shift, so a covariate that is a
+        # combination of the others plus a constant cannot be told apart from them either.
+        collinear = collinear_columns(np.column_stack([np.ones(len(data)), data[covariates].to_numpy(float)]),
+                                      ["(constant)", *covariates])
+        if collinear:
+            listed = "; ".join(f"'{c}' = combination of {', '.join(repr(p) for p in partners)}" for c, partners in collinear)
+            raise AnalysisError(f"{table}: collinear covariates, their hazard ratios cannot be told apart: {listed}; "
+                                "drop one of each group")
 
         self.covariates_ = covariates
         self.n_spells_ = len(data)
@@ -210,6 +218,7 @@ class TimeVaryingCox(FittedMixin):
             )
             lengthen = with_event.to_numpy()
             data = data.copy()
+            data[stop_col] = data[stop_col].astype(float)
             data.loc[lengthen, stop_col] = data.loc[lengthen, stop_col] + 0.5
             data = data[~(zero & ~data[event_col]).to_numpy()]
         return data
@@ -267,11 +276,16 @@ class TimeVaryingCox(FittedMixin):
         rng = np.random.default_rng(self.seed)
         n = len(customers)
         initial = self.params_.to_numpy(float)
+        information = efron_terms(index.table(), initial, penalizer)[2]
         draws = np.full((self.bootstrap_rounds, len(initial)), np.nan)
         for r in range(self.bootstrap_rounds):
             multiplicity = np.bincount(rng.integers(0, n, n), minlength=n).astype(float)
             weights = multiplicity[customer_codes]
-            fit = fit_efron(index.table(weights), initial=initial, penalizer=penalizer)
+            # The full data's information stands in for the resample's own (same size, similar
+            # data): cheaper steps, same optimum. Iterated until a step moves no log hazard ratio
+            # by more than 1e-4, a hundredth or less of the bootstrap spread.
+            fit = fit_efron(index.table(weights), initial=initial, penalizer=penalizer, tol=1e-4,
+                            fixed_information=information)
             if fit.converged:
                 draws[r] = fit.params
         failed = int(np.isnan(draws[:, 0]).sum()) if len(initial) else 0

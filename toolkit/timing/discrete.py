@@ -45,7 +45,7 @@ from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparatio
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
 from ._base import FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
-from .checks import check_columns, check_enough_events, check_numeric, collinear_columns, constant_columns
+from .checks import check_columns, check_enough_events, check_numeric, collinear_columns, constant_columns, shown
 from .cox import CONVERGENCE_CHECKLIST
 
 
@@ -62,15 +62,27 @@ def cloglog_loglik(design: np.ndarray, events: np.ndarray, at_risk: np.ndarray, 
     return float(np.sum(np.where(events > 0, events * log_p, 0.0)) - np.sum((at_risk - events) * rate))
 
 
-def fit_cloglog(design: np.ndarray, events: np.ndarray, at_risk: np.ndarray, start: np.ndarray, *,
-                max_iter: int = 30, tol: float = 1e-8) -> tuple[np.ndarray, bool]:
+def cloglog_information(design, events, at_risk, params) -> np.ndarray:
+    """Fisher information of the binomial cloglog model at ``params``."""
+    design = design if sparse.issparse(design) else sparse.csr_matrix(design)
+    rate = np.exp(np.minimum(design @ params, 30.0))
+    p = np.clip(-np.expm1(-rate), 1e-300, 1.0)
+    weight = at_risk * rate * rate * (1.0 - p) / p
+    return (design.T @ design.multiply(weight[:, None])).toarray()
+
+
+def fit_cloglog(design, events: np.ndarray, at_risk: np.ndarray, start: np.ndarray, *,
+                max_iter: int = 30, tol: float = 1e-8, fixed_information: np.ndarray | None = None
+                ) -> tuple[np.ndarray, bool]:
     """Fisher scoring for the binomial cloglog model (the bootstrap refits; equal to statsmodels' fit).
 
-    statsmodels' IRLS solves each step by a singular value decomposition of the whole design,
-    which is the safe choice once but slow when repeated for every bootstrap round; here each step
-    solves the small normal equations, starting from the full-data estimate.
+    statsmodels' IRLS solves each step by a factorisation of the whole (dense) design, which is
+    the safe choice once but slow when repeated for every bootstrap round; here each step solves
+    the small normal equations of a sparse design, starting from the full-data estimate. With
+    ``fixed_information`` every step reuses that matrix (the full data's information for a
+    resample of it): steps are then a single sparse product, and the fixed point is the same.
     """
-    design = sparse.csr_matrix(design)  # mostly indicators: sparse products are far cheaper
+    design = design if sparse.issparse(design) else sparse.csr_matrix(design)  # mostly indicators
     params = np.asarray(start, dtype=float).copy()
     loglik = cloglog_loglik(design, events, at_risk, params)
     slack = 1e-10 * max(abs(loglik), 1.0)  # rounding of a sum of many cells near the optimum
@@ -79,9 +91,12 @@ def fit_cloglog(design: np.ndarray, events: np.ndarray, at_risk: np.ndarray, sta
         rate = np.exp(np.minimum(eta, 30.0))
         p = np.clip(-np.expm1(-rate), 1e-300, 1.0)
         score_eta = events * rate * (1.0 - p) / p - (at_risk - events) * rate
-        weight = at_risk * rate * rate * (1.0 - p) / p
-        information = (design.T @ design.multiply(weight[:, None])).toarray()
         gradient = design.T @ score_eta
+        if fixed_information is None:
+            weight = at_risk * rate * rate * (1.0 - p) / p
+            information = (design.T @ design.multiply(weight[:, None])).toarray()
+        else:
+            information = fixed_information
         try:
             step = np.linalg.solve(information, gradient)
         except np.linalg.LinAlgError:  # aliased nuisance indicators: a minimum-norm step
@@ -199,14 +214,14 @@ class DiscreteTimeHazard(FittedMixin):
         if len(bad):
             row = bad.iloc[0]
             raise DataError(
-                f"{table}: {len(bad)} cell(s) with events outside 0..at_risk, e.g. {events_col}={row[events_col]!r} "
-                f"{at_risk_col}={row[at_risk_col]!r}; rebuild the cells"
+                f"{table}: {len(bad)} cell(s) with events outside 0..at_risk, e.g. {events_col}={shown(row[events_col])} "
+                f"{at_risk_col}={shown(row[at_risk_col])}; rebuild the cells"
             )
         n_events = float(data[events_col].sum())
         check_enough_events(n_events, len(covariates), table=table)
         constant = constant_columns(data, covariates)
         if constant:
-            listed = ", ".join(f"'{c}' (always {v!r})" for c, v in constant.items())
+            listed = ", ".join(f"'{c}' (always {shown(v)})" for c, v in constant.items())
             raise AnalysisError(
                 f"{table}: covariate(s) {listed} never vary in cells with customers at risk, so their hazard "
                 "ratio cannot be estimated; drop them or check how they are built"
@@ -244,7 +259,8 @@ class DiscreteTimeHazard(FittedMixin):
         self.at_risk_ = int(round(float(at_risk.sum())))
         self._all_params = coef.to_numpy(float)
         self.adjustment_params_ = coef[[n for n in names if n not in covariates and not n.startswith("period=")]]
-        self.bootstrap_params_ = self._bootstrap(data, keys, events_col, at_risk_col, block_col, pooled, penalised)
+        self.bootstrap_params_ = self._bootstrap(data, keys, events_col, at_risk_col, block_col, pooled, penalised,
+                                                 events, at_risk)
         return self
 
     # -- checks ---------------------------------------------------------------------------------
@@ -344,7 +360,7 @@ class DiscreteTimeHazard(FittedMixin):
         )
         warnings.warn(message, StatisticalWarning, stacklevel=4)
         model = sm.GLM(events / at_risk, design, family=cloglog_family(), var_weights=at_risk)
-        penalty = np.full(design.shape[1], self.refit_penalizer / max(at_risk.sum(), 1.0))
+        penalty = np.full(design.shape[1], float(self.refit_penalizer))  # statsmodels scales the log-likelihood per row
         penalty[[i for i, n in enumerate(names) if n.startswith("period=")]] = 0.0
         try:
             with warnings.catch_warnings():
@@ -357,7 +373,8 @@ class DiscreteTimeHazard(FittedMixin):
         return {"params": params, "bse": np.full(len(params), np.nan), "llf": llf}, True, (
             f"PENALISED refit (ridge {self.refit_penalizer}) after non-convergence")
 
-    def _bootstrap(self, data, keys, events_col, at_risk_col, block_col, pooled, penalised) -> pd.DataFrame:
+    def _bootstrap(self, data, keys, events_col, at_risk_col, block_col, pooled, penalised,
+                   pooled_events, pooled_at_risk) -> pd.DataFrame:
         if not self.bootstrap_rounds or not block_col:
             if self.bootstrap_rounds and not block_col:
                 warnings.warn("DiscreteTimeHazard: no block column, so no customer-block bootstrap; intervals are "
@@ -374,8 +391,10 @@ class DiscreteTimeHazard(FittedMixin):
         events = events.reshape(n_blocks, n_cells)
         at_risk = at_risk.reshape(n_blocks, n_cells)
         design, names = self._design(pooled, self.period_col, self.covariates_, self.factors_)
+        matrix = sparse.csr_matrix(design)
         wanted = [names.index(c) for c in self.covariates_]
-        nuisance = [j for j, name in enumerate(names) if name not in self.covariates_]
+        nuisance = np.array([j for j, name in enumerate(names) if name not in self.covariates_])
+        full_information = cloglog_information(matrix, pooled_events, pooled_at_risk, self._all_params)
         rng = np.random.default_rng(self.seed)
         draws = np.full((self.bootstrap_rounds, len(self.covariates_)), np.nan)
         for r in range(self.bootstrap_rounds):
@@ -385,13 +404,19 @@ class DiscreteTimeHazard(FittedMixin):
             # A period or adjustment level with no event in this resample carries no information
             # on the covariates: its indicator would run off to minus infinity. Its cells are left
             # out, which is that limit of the fit.
-            for j in nuisance:
-                on = design[:, j] > 0
-                if e[keep & on].sum() == 0:
-                    keep &= ~on
-            columns = np.flatnonzero(np.abs(design[keep]).sum(axis=0) > 0)
-            params, converged = fit_cloglog(design[np.ix_(keep, columns)], e[keep], n[keep],
-                                            self._all_params[columns])
+            present = matrix.T @ keep.astype(float)
+            with_events = matrix.T @ np.where(keep, e, 0.0)
+            empty = nuisance[(present[nuisance] > 0) & (with_events[nuisance] == 0)]
+            if len(empty):
+                keep &= np.asarray(matrix[:, empty].sum(axis=1)).ravel() == 0
+            rows = matrix[keep]
+            columns = np.flatnonzero(rows.getnnz(axis=0) > 0)
+            # Each resample holds as many blocks as the data, so the full data's information is a
+            # close stand-in for its own; iterated until no step moves a coefficient by more than
+            # 1e-4 (a hundredth or less of the bootstrap spread).
+            params, converged = fit_cloglog(rows[:, columns], e[keep], n[keep], self._all_params[columns],
+                                            tol=1e-4, max_iter=60,
+                                            fixed_information=full_information[np.ix_(columns, columns)])
             position = {c: i for i, c in enumerate(columns)}
             if converged and all(c in position for c in wanted) and np.all(np.isfinite(params)):
                 draws[r] = params[[position[c] for c in wanted]]

@@ -23,7 +23,7 @@ import pandas as pd
 
 from ..errors import AnalysisError, DataError
 
-SQL_DIR = Path(__file__).resolve().parents[2] / "sql" / "timing"
+SQL_DIR = Path(__file__).resolve().parents[2] / "sql" / "timing"  # beside sql/checks and sql/panels
 ORDER = (
     "timing_purchase_days",
     "timing_calendar",
@@ -98,9 +98,10 @@ class TimingTables:
         if options.dip_after not in DIP_AFTER:
             raise AnalysisError(f"dip_after must be one of {', '.join(DIP_AFTER)}, found {options.dip_after!r}")
         self.options = options
+        self._con = con
         self.cursor = con.cursor()
         cur = self.cursor
-        for name, value in (
+        self._variables = (
             ("timing_n_blocks", int(options.n_blocks)),
             ("timing_seed", int(options.seed)),
             ("timing_dip_after", options.dip_after),
@@ -111,8 +112,8 @@ class TimingTables:
             ("timing_sample_customers", int(options.sample_customers)),
             ("timing_rate_classes", int(options.rate_classes)),
             ("timing_min_history_days", int(options.min_history_days)),
-        ):
-            cur.execute(f"SET VARIABLE {name} = ?", [value])
+        )
+        self._set_variables(cur)
         starts = pd.DataFrame({"start_day": np.array([day_number(d) for d in expected_starts], dtype=np.int32)})
         self._register("timing_expected_starts", starts)
         cur.execute(sql_text("timing_purchase_days"))
@@ -129,10 +130,15 @@ class TimingTables:
         for name in ORDER[1:]:
             cur.execute(sql_text(name))
 
-    def _register(self, name: str, frame: pd.DataFrame) -> None:
-        self.cursor.register(f"{name}_frame", frame)
-        self.cursor.execute(f"CREATE OR REPLACE TEMP TABLE {name} AS SELECT * FROM {name}_frame")
-        self.cursor.unregister(f"{name}_frame")
+    def _set_variables(self, cursor) -> None:
+        for name, value in self._variables:
+            cursor.execute(f"SET VARIABLE {name} = ?", [value])
+
+    def _register(self, name: str, frame: pd.DataFrame, cursor=None) -> None:
+        cursor = cursor or self.cursor
+        cursor.register(f"{name}_frame", frame)
+        cursor.execute(f"CREATE OR REPLACE TEMP TABLE {name} AS SELECT * FROM {name}_frame")
+        cursor.unregister(f"{name}_frame")
 
     # -- outputs ----------------------------------------------------------------------------------
     def cells(self) -> pd.DataFrame:
@@ -142,11 +148,27 @@ class TimingTables:
         return self.cursor.execute("SELECT * FROM timing_gap_counts").df()
 
     def cox_spells(self) -> pd.DataFrame:
-        """Spells of the sampled customers (customer ids stay inside the fit, never in outputs)."""
-        return self.cursor.execute(
-            "SELECT s.* FROM timing_spells AS s SEMI JOIN timing_cox_sample AS c ON s.customer_id = c.customer_id "
-            "ORDER BY s.customer_id, s.purchase_day, s.start_days"
-        ).df()
+        """Spells of the sampled customers (customer ids stay inside the fit, never in outputs).
+
+        The spells SQL is run again on a second private cursor whose inputs hold the sampled
+        customers only, so the sample's spells cost what the sample costs, not the whole export.
+        """
+        sampled = {
+            name: self.cursor.execute(
+                f"SELECT t.* FROM {name} AS t SEMI JOIN timing_cox_sample AS c ON t.customer_id = c.customer_id"
+            ).df()
+            for name in ("timing_purchase_days", "timing_customer_changes")
+        }
+        sampled["timing_calendar"] = self.cursor.execute("SELECT * FROM timing_calendar").df()
+        cursor = self._con.cursor()
+        try:
+            self._set_variables(cursor)
+            for name, frame in sampled.items():
+                self._register(name, frame, cursor)
+            cursor.execute(sql_text("timing_spells"))
+            return cursor.execute("SELECT * FROM timing_spells ORDER BY customer_id, purchase_day, start_days").df()
+        finally:
+            cursor.close()
 
     def customers_by_promotion(self) -> dict[str, int]:
         """Customers with a followed-up deal purchase day on each promotion."""
