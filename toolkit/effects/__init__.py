@@ -13,20 +13,29 @@ Public names:
   :func:`holdout_size_needed`
 """
 
-from .api import analyse_campaign, analyse_panel, list_targeted_promotions, run_campaigns, write_campaign, write_campaigns
-from .balance import RandomisationCheck, covariate_balance, sample_ratio_test
-from .holdout import HoldoutComparison, newcombe_interval, wilson_interval
-from .power import (
-    holdout_size_needed,
-    minimum_detectable_effect,
-    minimum_detectable_rate_lift,
-    rate_sample_size_per_arm,
-    sample_size_per_arm,
-)
-from .qini import area_under_uplift_curve, qini_coefficient, qini_curve, uplift_by_decile
-from .readout import CampaignReadout
-from .uplift import TLearner, TransformedOutcomeLearner, UpliftModel, XLearner
-from .weighting import WeightedComparison
+import importlib
+
+# Names are imported on first use, so that `liftlag check` or `build` does not pay for loading
+# scipy and scikit-learn.
+_HOME = {
+    "analyse_campaign": "api", "analyse_panel": "api", "list_targeted_promotions": "api",
+    "run_campaigns": "api", "write_campaign": "api", "write_campaigns": "api",
+    "RandomisationCheck": "balance", "covariate_balance": "balance", "sample_ratio_test": "balance",
+    "HoldoutComparison": "holdout", "newcombe_interval": "holdout", "wilson_interval": "holdout",
+    "holdout_size_needed": "power", "minimum_detectable_effect": "power",
+    "minimum_detectable_rate_lift": "power", "rate_sample_size_per_arm": "power", "sample_size_per_arm": "power",
+    "area_under_uplift_curve": "qini", "qini_coefficient": "qini", "qini_curve": "qini", "uplift_by_decile": "qini",
+    "CampaignReadout": "readout",
+    "TLearner": "uplift", "TransformedOutcomeLearner": "uplift", "UpliftModel": "uplift", "XLearner": "uplift",
+    "WeightedComparison": "weighting",
+}
+
+
+def __getattr__(name):
+    if name in _HOME:
+        return getattr(importlib.import_module(f".{_HOME[name]}", __name__), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
 
 __all__ = [
     "analyse_campaign", "analyse_panel", "list_targeted_promotions", "run_campaigns", "write_campaign",
