@@ -10,8 +10,9 @@ from pathlib import Path
 def runners() -> list:
     """The analysis runners, in order: callables (settings, out_dir, console) -> facts for the manifest."""
     from .effects.api import run_campaigns
+    from .timing.api import run_timing
 
-    return [run_campaigns]
+    return [run_campaigns, run_timing]
 
 
 def run_all(settings, out: Path, console=None, timings: dict | None = None) -> list[str]:

@@ -75,6 +75,23 @@ class TimingSettings:
     bootstrap_rounds: int = 50
     seed: int = 20261201
     alpha: float = 0.05
+    n_blocks: int = 64
+    coupons_cap: int = 10
+    dip_after: str = "targeted"
+    calendar_adjustment: bool = True
+    rate_adjustment: bool = True
+    rate_classes: int = 8
+    expected_starts: str = "cadence"
+    cadence_tolerance_days: int = 2
+    min_regular_share: float = 0.75
+    late_period_days: int = 14
+
+
+# Settings that take one of a few words.
+CHOICES = {
+    "timing.dip_after": ("targeted", "any"),
+    "timing.expected_starts": ("cadence", "observed"),
+}
 
 
 @dataclass(frozen=True)
@@ -258,8 +275,14 @@ def _parse_section(path: Path, name: str, body: Any):
             for pid, share in value.items():
                 _share(path, f"{full}.{pid}", share)
             kwargs[key] = {str(k): float(v) for k, v in value.items()}
+        elif isinstance(default, bool):
+            kwargs[key] = _expect(path, full, value, bool, "true or false")
+        elif full in CHOICES:
+            if value not in CHOICES[full]:
+                raise ConfigError(f"{path}: key '{full}' must be one of {', '.join(CHOICES[full])}, found {value!r}")
+            kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
-                     "baseline_threshold", "target_lift"):
+                     "baseline_threshold", "target_lift", "min_regular_share"):
             kwargs[key] = _share(path, full, value)
         elif key == "exclude_features":
             _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")

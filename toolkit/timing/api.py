@@ -188,7 +188,10 @@ def analyse_timing(
             readout.discrete = discrete
             hazard_ratios.append(_ratios(discrete, MODEL_DISCRETE))
             late = int(np.searchsorted(tables.periods["period_to"].to_numpy(), late_period_days, side="left")) + 1
-            ph_rows.append(late_interaction_check(discrete, cells, late_period=late).assign(model=MODEL_DISCRETE))
+            late_from = int(tables.periods["period_from"].iloc[late]) if late < len(tables.periods) else late_period_days
+            ph_rows.append(late_interaction_check(discrete, cells, late_period=late,
+                                                  late_label=f"day {late_from} or later since the purchase")
+                           .assign(model=MODEL_DISCRETE))
             discrete_note = (f"customer-days at risk in {discrete.n_cells_} cells; baseline per period since the last "
                              f"purchase{' + calendar month' if factors else ''}; {discrete.interval_method_}")
             if discrete.is_penalised_:
@@ -434,3 +437,35 @@ def write_timing(readout: TimingReadout, out_dir: str | Path) -> list[Path]:
     finally:
         shutil.rmtree(staging, ignore_errors=True)
     return written
+
+
+OPTION_NAMES = ("n_blocks", "coupons_cap", "dip_after", "calendar_adjustment", "rate_adjustment", "rate_classes",
+                "cadence_tolerance_days", "min_regular_share", "expected_starts", "late_period_days")
+
+
+def options_from(settings) -> dict:
+    """The keyword options of :func:`analyse_timing`, as the config's ``[timing]`` section sets them."""
+    return {name: getattr(settings.timing, name) for name in OPTION_NAMES}
+
+
+def run_timing(settings, out_dir: str | Path, console=None) -> dict:
+    """The runner for ``liftlag demo``: analyse the workspace's purchase timing, write the tables.
+
+    Returns facts for the manifest (tables written, seconds, notes).
+    """
+    import time
+
+    from .. import workspace
+
+    started = time.perf_counter()
+    con = workspace.connect(settings)
+    try:
+        readout = analyse_timing(con, settings, **options_from(settings))
+    finally:
+        con.close()
+    write_timing(readout, out_dir)
+    seconds = round(time.perf_counter() - started, 2)
+    if console is not None:
+        effects = readout.tables.get("timing_effects")
+        console.print(f"  timing: {len(effects) if effects is not None else 0} effect rows in {seconds:.1f} s")
+    return {"tables": sorted(readout.tables), "seconds": seconds, "notes": list(readout.notes)}

@@ -75,7 +75,8 @@ def time_fixed_check(gaps: pd.DataFrame, covariates: list[str], *, duration_col:
 
 
 def late_interaction_check(model: DiscreteTimeHazard, cells: pd.DataFrame, *, late_period: int,
-                           events_col: str = "events", at_risk_col: str = "at_risk") -> pd.DataFrame:
+                           events_col: str = "events", at_risk_col: str = "at_risk",
+                           late_label: str | None = None) -> pd.DataFrame:
     """Likelihood-ratio test of ``covariate x [period >= late_period]`` for each covariate of a fitted model."""
     keys = [model.period_col, *model.covariates_, *model.factors_]
     pooled = cells.groupby(keys, as_index=False, observed=True)[[events_col, at_risk_col]].sum()
@@ -87,6 +88,7 @@ def late_interaction_check(model: DiscreteTimeHazard, cells: pd.DataFrame, *, la
     events = pooled[events_col].to_numpy(float)
     at_risk = pooled[at_risk_col].to_numpy(float)
     late = (pooled[model.period_col].to_numpy() >= late_period).astype(float)
+    label = late_label or f"period >= {late_period}"
 
     def loglik(matrix, start):
         params, converged = fit_cloglog(matrix, events, at_risk, start, max_iter=60)
@@ -100,14 +102,14 @@ def late_interaction_check(model: DiscreteTimeHazard, cells: pd.DataFrame, *, la
         if np.ptp(extra) == 0 or np.allclose(extra, design[:, names.index(covariate)]):
             rows.append({"covariate": covariate, "method": "cloglog_late_interaction", "test_statistic": np.nan,
                          "degrees_of_freedom": 1, "p_value": np.nan, "n_events": model.n_events_,
-                         "note": f"not testable: covariate never on both before and from period {late_period}"})
+                         "note": f"not testable: covariate never on both before and from {label}"})
             continue
         full, converged = loglik(np.column_stack([design, extra]), np.append(base_start, 0.0))
         statistic = max(2 * (full - base), 0.0)
         rows.append({
             "covariate": covariate, "method": "cloglog_late_interaction", "test_statistic": statistic,
             "degrees_of_freedom": 1, "p_value": float(stats.chi2.sf(statistic, 1)), "n_events": model.n_events_,
-            "note": f"LR test of covariate x [period >= {late_period}] in the discrete-time model"
+            "note": f"LR test of covariate x [{label}] in the discrete-time model"
                     + ("" if converged else " (interaction fit did not converge)"),
         })
     return pd.DataFrame(rows, columns=COLUMNS)

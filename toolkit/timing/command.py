@@ -1,0 +1,62 @@
+"""``liftlag timing``: purchase-timing effects (acceleration, post-promotion dip, anticipation,
+gap after a deal), written as tables.
+
+Wired into the ``liftlag`` parser by ``toolkit.commands.register_all`` through :func:`register`.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+DEFAULT_OUT = "results"
+
+
+def register(sub, config_arg) -> None:
+    """Add the ``timing`` subcommand to the ``liftlag`` parser."""
+    p = sub.add_parser(
+        "timing",
+        help="purchase timing: acceleration, post-promotion dip, anticipation, gap after a deal (tables)",
+    )
+    config_arg(p)
+    p.add_argument("--out", default=DEFAULT_OUT, help=f"output folder (default: ./{DEFAULT_OUT})")
+    p.add_argument("--no-cox", action="store_true",
+                   help="fit only the discrete-time model (skips the Cox model on the customer sample)")
+    p.set_defaults(handler=run_command)
+
+
+def run_command(args) -> int:
+    from .. import config, workspace
+    from ..cli import console, err_console
+    from .api import analyse_timing, options_from, write_timing
+
+    settings = config.load(args.config)
+    con = workspace.connect(settings)
+    try:
+        readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
+    finally:
+        con.close()
+    out = Path(args.out)
+    write_timing(readout, out)
+    _print_summary(console, readout)
+    for note in readout.notes:
+        err_console.print(f"[yellow]note:[/] {note}")
+    console.print(f"timing tables in [bold]{out}[/] ({', '.join(sorted(readout.tables))})")
+    return 0
+
+
+def _print_summary(console, readout) -> None:
+    from rich.table import Table
+
+    effects = readout.tables["timing_effects"]
+    table = Table(title="purchase timing (hazard ratios; gap after a deal in days)")
+    for column in ("effect", "model", "estimate", "interval", "customers"):
+        table.add_column(column, justify="left" if column in ("effect", "model") else "right", overflow="fold")
+    for row in effects[effects["scope"] == "all"].itertuples():
+        if row.estimate is None or (isinstance(row.estimate, float) and math.isnan(row.estimate)):
+            estimate, interval = "not estimable", ""
+        else:
+            estimate = f"{row.estimate:.3g}"
+            interval = f"{row.ci_low:.3g} to {row.ci_high:.3g} ({row.ci_level:.0%})"
+        table.add_row(row.effect, row.model, estimate, interval, f"{row.n_customers:,}")
+    console.print(table)
