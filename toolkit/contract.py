@@ -168,7 +168,7 @@ PANELS: dict[str, tuple[Column, ...]] = {
     "campaign_windows": (
         Column("promotion_id", "VARCHAR"),
         Column("customer_id", "VARCHAR"),
-        Column("arm", "VARCHAR"),
+        Column("arm", "VARCHAR", description="treatment, holdout, or comparison (unassigned pre-period buyers, for a campaign without holdout)"),
         Column("is_treated", "BOOLEAN"),
         Column("assigned_at", "TIMESTAMP"),
         Column("starts_on", "DATE", description="first day of the campaign window"),

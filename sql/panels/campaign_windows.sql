@@ -2,9 +2,36 @@
 -- pre-period features (over pre_period_days before the campaign starts), and the outcomes in
 -- the campaign window (its first to last day) and in the window after it (after_days long).
 -- A window of the campaign's own length just before it gives the CUPED covariates (pre_*).
+-- A targeted promotion without any holdout also gets, in arm 'comparison', every customer who
+-- ordered in its pre-period and was not assigned to it: the pool a weighted (not randomised)
+-- comparison draws on.
 -- Reads: orders, campaign_assignments (panels), transactions, customers (checked inputs)
 -- Parameters: getvariable('pre_period_days'), getvariable('after_days')
-WITH assigned AS (
+WITH targeted AS (
+    SELECT promotion_id, customer_id, arm, assigned_at, starts_on, ends_on
+    FROM campaign_assignments
+    WHERE audience = 'targeted'
+),
+
+no_holdout AS (
+    SELECT promotion_id, min(starts_on) AS starts_on, min(ends_on) AS ends_on
+    FROM targeted
+    GROUP BY promotion_id
+    HAVING count(*) FILTER (WHERE arm = 'holdout') = 0
+),
+
+comparison AS (
+    SELECT DISTINCT n.promotion_id, o.customer_id, n.starts_on, n.ends_on
+    FROM no_holdout AS n
+    INNER JOIN orders AS o
+        ON o.ordered_on < n.starts_on
+        AND o.ordered_on >= n.starts_on - CAST(getvariable('pre_period_days') AS INTEGER)
+    WHERE NOT EXISTS (
+        SELECT 1 FROM targeted AS t WHERE t.promotion_id = n.promotion_id AND t.customer_id = o.customer_id
+    )
+),
+
+assigned AS (
     SELECT
         promotion_id,
         customer_id,
@@ -15,8 +42,11 @@ WITH assigned AS (
         ends_on + CAST(getvariable('after_days') AS INTEGER) AS after_ends_on,
         starts_on - CAST(getvariable('pre_period_days') AS INTEGER) AS pre_period_on,
         starts_on - CAST(date_diff('day', starts_on, ends_on) + 1 AS INTEGER) AS pre_window_on
-    FROM campaign_assignments
-    WHERE audience = 'targeted'
+    FROM (
+        SELECT * FROM targeted
+        UNION ALL
+        SELECT promotion_id, customer_id, 'comparison', CAST(NULL AS TIMESTAMP), starts_on, ends_on FROM comparison
+    ) AS both_kinds
 ),
 
 -- Coupons received before this assignment (treatment arms of earlier assignments).

@@ -174,6 +174,13 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
             f"SELECT c.* FROM checked.customers c WHERE c.customer_id IN "
             f"(SELECT customer_id FROM {PANEL} WHERE promotion_id = ?)", [str(promotion_id)]
         ).df()
+    # A campaign without holdout comes with a pool of unassigned pre-period buyers (arm
+    # 'comparison'): the comparison for the weighted readout, unless one is given.
+    pool = panel["arm"] == "comparison"
+    if pool.any():
+        if comparison is None:
+            comparison = panel[pool].reset_index(drop=True)
+        panel = panel[~pool].reset_index(drop=True)
     read_seconds = time.perf_counter() - started
     readout = analyse_panel(panel, promotion=promotion, settings=settings, customers=customers, comparison=comparison,
                             exclude_features=exclude_features, uplift_threshold=uplift_threshold,
