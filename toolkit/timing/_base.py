@@ -84,3 +84,30 @@ class FittedMixin:
             return self.to_html()
         except AnalysisError:
             return f"<p>{html.escape(type(self).__name__)} (not fitted)</p>"
+
+
+class BootstrapIntervalsMixin:
+    """Intervals of log hazard ratios: bootstrap percentile when bootstrapped, else Wald.
+
+    Needs ``params_``, ``standard_errors_`` and ``bootstrap_params_`` (a DataFrame of draws, maybe
+    empty) on the fitted estimator.
+    """
+
+    def _is_bootstrapped(self) -> bool:
+        return bool(len(self.bootstrap_params_) and self.bootstrap_params_.notna().any().any())
+
+    def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
+        """Interval of each log hazard ratio: bootstrap percentile when bootstrapped, else Wald."""
+        self._check_fitted()
+        alpha = check_alpha(alpha)
+        if self._is_bootstrapped():
+            low, high = percentile_interval(self.bootstrap_params_.to_numpy(float), alpha)
+        else:
+            z = z_value(alpha)
+            low = self.params_.to_numpy() - z * self.standard_errors_.to_numpy()
+            high = self.params_.to_numpy() + z * self.standard_errors_.to_numpy()
+        return pd.DataFrame({"ci_low": low, "ci_high": high}, index=self.params_.index)
+
+    @property
+    def bootstrap_standard_errors_(self) -> pd.Series:
+        return self.bootstrap_params_.std(ddof=1).reindex(self.params_.index)

@@ -28,7 +28,7 @@ from lifelines.exceptions import ConvergenceWarning
 from scipy import stats
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
-from ._base import FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
+from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
 from .checks import check_columns, check_covariates_vary, check_enough_events, check_numeric, collinear_columns, shown
 from .efron import SpellIndex, efron_terms, fit_efron
 
@@ -44,7 +44,7 @@ CONVERGENCE_CHECKLIST = (
 )
 
 
-class TimeVaryingCox(FittedMixin):
+class TimeVaryingCox(BootstrapIntervalsMixin, FittedMixin):
     """Cox proportional-hazards model on start-stop spells, customer-clustered intervals.
 
     Parameters
@@ -297,25 +297,9 @@ class TimeVaryingCox(FittedMixin):
     # -- results --------------------------------------------------------------------------------
     @property
     def interval_method_(self) -> str:
-        if len(self.bootstrap_params_) and self.bootstrap_params_.notna().any().any():
+        if self._is_bootstrapped():
             return f"customer bootstrap, {len(self.bootstrap_params_)} rounds, percentile"
         return "model-based (Wald), customers treated as independent spells"
-
-    def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
-        """Interval of each log hazard ratio: bootstrap percentile when bootstrapped, else Wald."""
-        self._check_fitted()
-        alpha = check_alpha(alpha)
-        if len(self.bootstrap_params_) and self.bootstrap_params_.notna().any().any():
-            low, high = percentile_interval(self.bootstrap_params_.to_numpy(float), alpha)
-        else:
-            z = z_value(alpha)
-            low = self.params_.to_numpy() - z * self.standard_errors_.to_numpy()
-            high = self.params_.to_numpy() + z * self.standard_errors_.to_numpy()
-        return pd.DataFrame({"ci_low": low, "ci_high": high}, index=self.params_.index)
-
-    @property
-    def bootstrap_standard_errors_(self) -> pd.Series:
-        return self.bootstrap_params_.std(ddof=1).reindex(self.params_.index)
 
     def _summary_frame(self) -> pd.DataFrame:
         ci = self.conf_int(self.alpha)

@@ -44,7 +44,7 @@ from scipy import sparse, stats
 from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparationWarning
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
-from ._base import FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
+from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
 from .checks import check_columns, check_enough_events, check_numeric, collinear_columns, constant_columns, shown
 from .cox import CONVERGENCE_CHECKLIST
 
@@ -116,7 +116,7 @@ def fit_cloglog(design, events: np.ndarray, at_risk: np.ndarray, start: np.ndarr
     return params, False
 
 
-class DiscreteTimeHazard(FittedMixin):
+class DiscreteTimeHazard(BootstrapIntervalsMixin, FittedMixin):
     """Complementary log-log hazard model on period x covariate cells.
 
     Parameters
@@ -429,25 +429,9 @@ class DiscreteTimeHazard(FittedMixin):
     # -- results --------------------------------------------------------------------------------
     @property
     def interval_method_(self) -> str:
-        if len(self.bootstrap_params_) and self.bootstrap_params_.notna().any().any():
+        if self._is_bootstrapped():
             return f"customer-block bootstrap, {len(self.bootstrap_params_)} rounds, percentile"
         return "model-based (Wald), customer-periods treated as independent"
-
-    def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
-        """Interval of each log hazard ratio: block-bootstrap percentile when bootstrapped, else Wald."""
-        self._check_fitted()
-        alpha = check_alpha(alpha)
-        if len(self.bootstrap_params_) and self.bootstrap_params_.notna().any().any():
-            low, high = percentile_interval(self.bootstrap_params_.to_numpy(float), alpha)
-        else:
-            z = z_value(alpha)
-            low = self.params_.to_numpy() - z * self.standard_errors_.to_numpy()
-            high = self.params_.to_numpy() + z * self.standard_errors_.to_numpy()
-        return pd.DataFrame({"ci_low": low, "ci_high": high}, index=self.params_.index)
-
-    @property
-    def bootstrap_standard_errors_(self) -> pd.Series:
-        return self.bootstrap_params_.std(ddof=1).reindex(self.params_.index)
 
     def _summary_frame(self) -> pd.DataFrame:
         ci = self.conf_int(self.alpha)
