@@ -165,8 +165,8 @@ def child(customers: int, seed: int) -> None:
         "stages_s": {k: round(v, 1) for k, v in readout.meta.get("seconds", {}).items()},
         "chosen_model": readout.meta.get("chosen_model"), "randomisation_check": readout.randomisation_check,
         "qini": {r["learner"]: round(float(r["qini_coefficient"]), 4) for _, r in choice.iterrows()},
-        # model_choice.fit_seconds holds the fit of all learners together (the same on every row)
-        "fit_s": round(float(choice["fit_seconds"].max()), 1) if len(choice) else None,
+        # model_choice.all_learners_fit_seconds: the fit of all learners together (the same on every row)
+        "fit_s": round(float(choice["all_learners_fit_seconds"].max()), 1) if len(choice) else None,
         "files": len(written), "out": str(workdir),
     }))
     shutil.rmtree(workdir, ignore_errors=True)
