@@ -103,3 +103,34 @@ def write_export(folder: Path, *, transactions=None, promotions=None, assignment
 @pytest.fixture
 def tiny_config(tmp_path) -> Path:
     return write_export(tmp_path / "export")
+
+
+DEMO_DATA = Path(__file__).resolve().parents[1] / "demo_data"
+
+
+@pytest.fixture(scope="session")
+def demo_settings(tmp_path_factory):
+    """The shipped demo export, checked and built into a workspace of the test session's own."""
+    import dataclasses
+
+    from toolkit import config, panels
+    from toolkit.config import WorkspaceSettings
+
+    settings = config.load(DEMO_DATA / "liftlag.toml")
+    settings = dataclasses.replace(settings, workspace=WorkspaceSettings(path=tmp_path_factory.mktemp("demo_ws")))
+    panels.build(settings)
+    return settings
+
+
+@pytest.fixture(scope="session")
+def demo_config(demo_settings, tmp_path_factory):
+    """A liftlag.toml for the shipped demo export whose workspace is the session's built one."""
+    import re
+
+    text = (DEMO_DATA / "liftlag.toml").read_text()
+    text = re.sub(r'^path = "(?!\.liftlag)([^"]+)"', lambda m: f'path = "{(DEMO_DATA / m.group(1)).as_posix()}"',
+                  text, flags=re.M)
+    text = text.replace('path = ".liftlag"', f'path = "{demo_settings.workspace_dir.as_posix()}"')
+    path = tmp_path_factory.mktemp("demo_cfg") / "liftlag.toml"
+    path.write_text(text)
+    return path

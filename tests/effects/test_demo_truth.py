@@ -17,22 +17,14 @@ import pandas as pd
 import pytest
 
 ROOT = Path(__file__).resolve().parents[2]
-READY = ROOT / ".panels_ready"
 DEMO = ROOT / "demo_data"
 
-pytestmark = pytest.mark.skipif(
-    not READY.exists(),
-    reason="the demo workspace is not built yet (/work/main/.panels_ready is missing); "
-           "build it with `liftlag build -c demo_data/liftlag.toml`",
-)
-
-
 @pytest.fixture(scope="module")
-def demo():
-    from toolkit import config, workspace
+def demo(demo_settings):
+    from toolkit import workspace
     from toolkit.effects.api import analyse_campaign, list_targeted_promotions
 
-    settings = config.load(DEMO / "liftlag.toml")
+    settings = demo_settings  # the shipped demo export, built for this test session
     # 3 folds instead of the configured 5 keeps this test near ten seconds; the estimates of the
     # average effects do not depend on the folds, the uplift scores only a little
     settings = dataclasses.replace(settings, campaign=dataclasses.replace(settings.campaign, folds=3))

@@ -14,13 +14,11 @@ ROOT = Path(__file__).resolve().parents[2]
 
 
 @pytest.mark.slow
-@pytest.mark.skipif(not (ROOT / ".panels_ready").exists(),
-                    reason="the demo workspace is not built yet (/work/main/.panels_ready is missing)")
-def test_timing_command_writes_the_tables(tmp_path, capsys):
+def test_timing_command_writes_the_tables(tmp_path, capsys, demo_config):
     parser = argparse.ArgumentParser(prog="liftlag")
     sub = parser.add_subparsers(dest="command")
     register(sub, lambda p: p.add_argument("-c", "--config", required=True))
-    args = parser.parse_args(["timing", "-c", str(ROOT / "demo_data" / "liftlag.toml"), "--out", str(tmp_path),
+    args = parser.parse_args(["timing", "-c", str(demo_config), "--out", str(tmp_path),
                               "--no-cox"])
     assert args.handler(args) == 0
     names = {p.stem for p in tmp_path.glob("*.parquet")}

@@ -35,18 +35,9 @@ from toolkit import config, workspace
 from toolkit.timing.api import analyse_timing
 
 ROOT = Path(__file__).resolve().parents[2]
-READY = ROOT / ".panels_ready"
 DEMO = ROOT / "demo_data"
 MODELS = ("discrete_cloglog", "cox_time_varying")
-needs_demo = pytest.mark.skipif(
-    not READY.exists(),
-    reason="the demo workspace is not built yet (/work/main/.panels_ready is missing); "
-           "build it with `liftlag build -c demo_data/liftlag.toml`",
-)
-
-
-def run(config_path: Path, **timing):
-    settings = config.load(config_path)
+def run(settings, **timing):
     if timing:
         settings = dataclasses.replace(settings, timing=dataclasses.replace(settings.timing, **timing))
     with warnings.catch_warnings():
@@ -60,12 +51,11 @@ def rows(readout, effect):
 
 
 @pytest.fixture(scope="module")
-def demo():
+def demo(demo_settings):
     truth = json.loads((DEMO / "truth.json").read_text())
-    return run(DEMO / "liftlag.toml"), truth
+    return run(demo_settings), truth
 
 
-@needs_demo
 @pytest.mark.slow
 @pytest.mark.parametrize("model", MODELS)
 @pytest.mark.parametrize("effect,truth_key", [("post_promotion_dip", "post_promotion_dip"),
@@ -78,7 +68,6 @@ def test_demo_dip_and_anticipation_are_below_one_and_cover_the_truth(demo, model
     assert row["ci_low"] <= true_ratio <= row["ci_high"], (effect, model, row.to_dict(), true_ratio)
 
 
-@needs_demo
 @pytest.mark.slow
 def test_demo_discrete_and_cox_hazard_ratios_agree(demo):
     """Tolerance 0.03 on the log hazard ratio (a fraction of one bootstrap standard error here)."""
@@ -89,7 +78,6 @@ def test_demo_discrete_and_cox_hazard_ratios_agree(demo):
         assert gap < 0.03, (effect, gap)
 
 
-@needs_demo
 @pytest.mark.slow
 def test_demo_acceleration_is_above_one(demo):
     """Every coupon and the broadcast sale raise the hazard in the demo (truth.json mechanisms), except
@@ -112,7 +100,7 @@ def test_demo_without_effects_gives_intervals_that_include_one(tmp_path_factory)
     config_path = generate(out, effects="none")
     command = shutil.which("liftlag") or str(Path(sys.executable).parent / "liftlag")
     subprocess.run([command, "build", "-c", str(config_path)], check=True, capture_output=True, timeout=600)
-    readout = run(config_path, bootstrap_rounds=30)
+    readout = run(config.load(config_path), bootstrap_rounds=30)
     for effect in ("acceleration", "post_promotion_dip", "anticipation"):
         for model, row in rows(readout, effect).iterrows():
             assert row["ci_low"] <= 1 <= row["ci_high"], (effect, model, row.to_dict())
