@@ -38,3 +38,14 @@ def test_small_cells_are_suppressed(readouts):
     assert tiny["effects_chart"] is None and tiny["headline"] == []
     html = render_campaign(readouts["PS"], small_cell=20)
     assert "fewer than 20 customers" in html
+
+
+def test_only_lifts_whose_interval_excludes_zero_are_bold(readouts):
+    """The page says "Bold lifts have intervals that exclude zero" (common practice, no source)."""
+    html = render_campaign(readouts["P1"])
+    effects = readouts["P1"].tables["campaign_effects"]
+    crosses = ((effects["lift_ci_low"] <= 0) & (effects["lift_ci_high"] >= 0)).sum()
+    excludes = len(effects) - crosses
+    assert crosses > 0 and excludes > 0  # both kinds are on the page
+    rows = re.findall(r'<tr class="(clear|)"><td>', html)
+    assert rows.count("clear") == excludes and rows.count("") >= crosses

@@ -230,7 +230,8 @@ def _effects_rows(effects: pd.DataFrame, small_cell: int, currency: str) -> list
             "relative_ci": SUPPRESSED if suppress else fmt_interval(r.relative_lift_ci_low, r.relative_lift_ci_high, fmt_percent),
             "variance_reduction": fmt_percent(r.variance_reduction) if _finite(r.variance_reduction) else "",
             "n_treated": fmt_count(r.n_treated), "n_holdout": fmt_count(r.n_holdout),
-            "clear": (not suppress) and _finite(r.lift_ci_low) and (r.lift_ci_low > 0 or r.lift_ci_high < 0),
+            # (not "clear": in the template, r.clear would be the dict method, always true)
+            "excludes_zero": (not suppress) and _finite(r.lift_ci_low) and (r.lift_ci_low > 0 or r.lift_ci_high < 0),
         })
     return rows
 
