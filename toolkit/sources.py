@@ -25,7 +25,7 @@ from .config import Settings, TableSettings
 from .contract import INPUT_TABLES, InputTable
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
-from .errors import ConfigError, DataError
+from .errors import DataError
 
 
 @dataclass(frozen=True)
@@ -356,9 +356,3 @@ def fingerprint_files(files) -> list[dict]:
         st = Path(f).stat()
         out.append({"path": str(f), "bytes": st.st_size, "modified_ns": st.st_mtime_ns})
     return out
-
-
-def require_tables(settings: Settings) -> None:
-    for name in ("transactions", "promotions", "assignments"):
-        if name not in settings.tables:
-            raise ConfigError(f"{settings.config_path}: [tables.{name}] is missing; it is required")

@@ -26,9 +26,6 @@ row with a null estimate and a note), never as zero.
 
 from __future__ import annotations
 
-import os
-import shutil
-import tempfile
 import time
 import warnings
 from dataclasses import dataclass, field
@@ -423,20 +420,9 @@ def write_timing(readout: TimingReadout, out_dir: str | Path) -> list[Path]:
     list of Path
         The files written.
     """
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=".timing-", suffix=".tmp", dir=out))
-    written = []
-    try:
-        for name, frame in readout.tables.items():
-            frame.to_parquet(staging / f"{name}.parquet", index=False)
-        for name in readout.tables:
-            target = out / f"{name}.parquet"
-            os.replace(staging / f"{name}.parquet", target)
-            written.append(target)
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
-    return written
+    from ..results import write_tables
+
+    return write_tables(Path(out_dir), readout.tables)
 
 
 OPTION_NAMES = ("n_blocks", "coupons_cap", "dip_after", "calendar_adjustment", "rate_adjustment", "rate_classes",

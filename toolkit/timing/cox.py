@@ -28,7 +28,7 @@ from lifelines.exceptions import ConvergenceWarning
 from scipy import stats
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
-from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
+from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, single_threaded_blas
 from .checks import check_columns, check_covariates_vary, check_enough_events, check_numeric, collinear_columns, shown
 from .efron import SpellIndex, efron_terms, fit_efron
 

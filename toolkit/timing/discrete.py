@@ -44,7 +44,7 @@ from scipy import sparse, stats
 from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparationWarning
 
 from ..errors import AnalysisError, ConvergenceError, DataError, StatisticalWarning
-from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, percentile_interval, single_threaded_blas, z_value
+from ._base import BootstrapIntervalsMixin, FittedMixin, check_alpha, single_threaded_blas
 from .checks import check_columns, check_enough_events, check_numeric, collinear_columns, constant_columns, shown
 from .cox import CONVERGENCE_CHECKLIST
 

@@ -232,7 +232,7 @@ class TimeToNextOrder(FittedMixin):
                 + ", ".join(f"'{g}' has {found[g]}" for g in short)
                 + f"; at least {self.min_events} per group are needed"
             )
-        (kmf_a, agg_a), (kmf_b, agg_b) = fitted[first], fitted[second]
+        (_, agg_a), (_, agg_b) = fitted[first], fitted[second]
         if self.curves:
             test = logrank_test(
                 agg_a[days_col].to_numpy(float), agg_b[days_col].to_numpy(float),
