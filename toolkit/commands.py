@@ -1,12 +1,16 @@
-"""Registry of the analysis commands (campaign, timing, ...), each wired to its package's api."""
+"""Registry of the subcommands: the foundation commands, then each analysis package's own.
+
+A new analysis adds one line here (its ``register(sub, config_arg)``); ``cli.py`` is not touched."""
 
 from __future__ import annotations
 
 
 def register_all(sub, config_arg) -> None:
     """Add every analysis subcommand to the ``liftlag`` parser."""
+    from .core_commands import register as register_core
     from .effects.command import register as register_campaign
     from .timing.command import register as register_timing
 
+    register_core(sub, config_arg)
     register_campaign(sub, config_arg)
     register_timing(sub, config_arg)

@@ -36,7 +36,7 @@ def demo_export(out: Path, seed: int | None, customers: int | None) -> Path:
 
 def run_demo(out: Path, seed: int | None = None, customers: int | None = None, console: Console | None = None) -> int:
     from . import analyses
-    from .cli import print_check, run_build
+    from .console import print_check, run_build
 
     console = console or Console()
     out = out.expanduser().resolve()

@@ -25,7 +25,7 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
-    from ..cli import console, err_console
+    from ..console import console, err_console
     from .api import analyse_campaign, run_campaigns, write_campaign
 
     if bool(args.promotion_id) == bool(args.all):

@@ -27,7 +27,7 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
-    from ..cli import console, err_console
+    from ..console import console, err_console
     from .api import analyse_timing, options_from, write_timing
 
     settings = config.load(args.config)

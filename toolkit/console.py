@@ -1,0 +1,72 @@
+"""The terminal: the two consoles and the printing that several commands share.
+
+Commands print through ``console`` (results) and ``err_console`` (notes, warnings, errors); every
+text that comes from the export is escaped before it reaches rich's markup.
+"""
+
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+from rich.console import Console
+from rich.markup import escape
+from rich.table import Table
+
+console = Console(stderr=False, highlight=False, soft_wrap=True)
+err_console = Console(stderr=True, highlight=False, soft_wrap=True)
+
+
+def print_check(result) -> None:
+    table = Table(title=f"check ({result.seconds:.1f} s)", show_lines=False)
+    for col in ("table", "read", "accepted", "rejected", "warnings"):
+        table.add_column(col, justify="left" if col == "table" else "right")
+    for row in result.summary.itertuples():
+        if not row.configured:
+            table.add_row(row.table, "not configured", "", "", "")
+            continue
+        table.add_row(escape(row.table), f"{row.rows_read:,}", f"{row.accepted:,}", f"{row.rejected:,}", f"{row.warnings:,}")
+    console.print(table)
+    if len(result.rejects):
+        rej = Table(title="rejected rows by reason (details in the workspace: checked.duckdb, rejected_rows)")
+        for col in ("table", "reason", "rows"):
+            rej.add_column(col, justify="right" if col == "rows" else "left")
+        for row in result.rejects.itertuples(index=False):
+            rej.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
+        console.print(rej)
+        if result.examples is not None and len(result.examples):
+            console.print("examples (first rows of each reason):")
+            for row in result.examples.itertuples(index=False):
+                where = f"{Path(row.source_file).name} row {row.row_id}" if row.source_file else f"row {row.row_id}"
+                console.print(f"  {row.table} / {row.reason}: {where}: {row.detail} — {row.raw_values}", markup=False)
+    if len(result.warnings):
+        warn = Table(title="warnings (rows kept)")
+        for col in ("table", "rule", "rows"):
+            warn.add_column(col, justify="right" if col == "rows" else "left")
+        for row in result.warnings.itertuples(index=False):
+            warn.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
+        console.print(warn)
+
+
+def run_build(settings, force: bool = False):
+    """Check (when needed) and build the panels, showing progress; returns the BuildResult."""
+    from . import panels
+
+    started = time.perf_counter()
+    with console.status("building…") as status:
+        def progress(step, detail=""):
+            status.update(f"{step}: {escape(detail)}")
+
+        result = panels.build(settings, force=force, progress=progress)
+    if result.check is not None:
+        print_check(result.check)
+    if result.skipped:
+        console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
+    else:
+        table = Table(title=f"panels ({time.perf_counter() - started:.1f} s)")
+        for col in ("panel", "rows", "seconds"):
+            table.add_column(col, justify="left" if col == "panel" else "right")
+        for name, rows in result.rows.items():
+            table.add_row(name, f"{rows:,}", f"{result.seconds.get(name, 0):.2f}")
+        console.print(table)
+    return result
