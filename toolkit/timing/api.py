@@ -212,6 +212,14 @@ def analyse_timing(
             factors.append("rate_class")
         if "in_anticipation" in covariates and cells["window_no"].nunique() > 1:
             factors.append("window_no")
+            if "month_no" in factors and "is_exposed" in covariates:
+                # The exposed group's difference from the rest, month by month: the contrast of
+                # a window is then made against the same month's days away from it, so a change
+                # in who is exposed over the years (older customers collect coupons, newer ones
+                # have none) does not pass for anticipation.
+                cells = cells.assign(exposed_month=np.where(cells["is_exposed"] > 0, cells["month_no"], 0))
+                factors.append("exposed_month")
+                covariates.remove("is_exposed")
         hazard_ratios, ph_rows = [], []
         try:
             discrete = DiscreteTimeHazard(alpha=timing.alpha, bootstrap_rounds=timing.bootstrap_rounds,
@@ -546,15 +554,20 @@ def _cox(readout, tables, timing, covariates, dropped, factors, cadence, effects
         if spells["calendar_month_effect"].nunique() > 1:
             model_columns.append("calendar_month_effect")
             sample_note += "; seasonal adjustment: the discrete model's month effects as one covariate"
-    if "window_no" in factors and readout.discrete is not None:
-        # The same for the anticipation windows: everyone's hazard in each window, from the
-        # discrete model, as one covariate, so in_anticipation stays the exposed x window contrast.
-        effects_by_window = readout.discrete.factor_effects("window_no")
-        effects_by_window.index = effects_by_window.index.astype(spells["window_no"].dtype)
-        spells["calendar_window_effect"] = spells["window_no"].map(effects_by_window).fillna(0.0).astype(float)
-        if spells["calendar_window_effect"].nunique() > 1:
-            model_columns.append("calendar_window_effect")
-            sample_note += "; anticipation windows: the discrete model's window effects as one covariate"
+    if "exposed_month" in factors:
+        spells["exposed_month"] = np.where(spells["is_exposed"] > 0, spells["month_no"], 0)
+    for factor, column, what in (("window_no", "calendar_window_effect", "window"),
+                                 ("exposed_month", "exposed_month_effect", "exposed-group-by-month")):
+        # The same for the anticipation windows and the exposed group by month: the discrete
+        # model's effects as one covariate each, so in_anticipation stays the exposed x window contrast.
+        if factor not in factors or readout.discrete is None:
+            continue
+        by_level = readout.discrete.factor_effects(factor)
+        by_level.index = by_level.index.astype(float).astype(spells[factor].dtype)
+        spells[column] = spells[factor].map(by_level).fillna(0.0).astype(float)
+        if spells[column].nunique() > 1:
+            model_columns.append(column)
+            sample_note += f"; the discrete model's {what} effects as one covariate"
     usable = [c for c in covariates if spells[c].nunique() > 1]
     try:
         if len(usable) < len(covariates):
