@@ -333,7 +333,7 @@ def _randomised(readout, tables, timing, effects) -> None:
         fit = fits[window]
         readout.randomised[effect] = fit
         what = ("in the campaign window" if window == "during" else
-                f"in the window after the campaign (after_days, cut at the export's end)")
+                "in the window after the campaign (after_days, cut at the export's end)")
         for row in fit.ratios_.itertuples():
             scope = "all" if row.stratum == POOLED else row.stratum
             if not row.is_estimable:
