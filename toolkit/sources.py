@@ -16,6 +16,7 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import glob
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -25,7 +26,11 @@ from .config import Settings, TableSettings
 from .contract import INPUT_TABLES, InputTable
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
-from .errors import DataError
+from .errors import ConfigError, DataError, DataWarning
+from .failures import duckdb_cause
+
+# Columns the reader adds; never the export's own.
+READER_COLUMNS = ("_source_file", "file_row_number")
 
 
 @dataclass(frozen=True)
@@ -57,7 +62,8 @@ def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
         else:
             files = [full] if p.is_file() else []
     if not files:
-        raise DataError(
+        # The config names the files: a path that matches nothing is a config mistake (exit 2).
+        raise ConfigError(
             f"{settings.config_path}: tables.{table.name}.path = {table.path!r} matches no file "
             f"(looked for {full}); check the path, which is relative to the config's folder"
         )
@@ -77,6 +83,10 @@ def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[st
         return f"read_parquet({files_expr}, union_by_name = true, filename = '_source_file', file_row_number = true{hive})"
     if table.format == "csv":
         opts = ["all_varchar = true", f"header = {str(table.header).lower()}", "filename = '_source_file'", "union_by_name = true"]
+        if table.encoding is not None:
+            evar = f"liftlag_encoding_{table.name}"
+            con.execute(f"SET VARIABLE {evar} = ?", [table.encoding])
+            opts.append(f"encoding = getvariable('{evar}')")
         if table.delimiter is not None:
             dvar = f"liftlag_delim_{table.name}"
             con.execute(f"SET VARIABLE {dvar} = ?", [table.delimiter])
@@ -97,9 +107,55 @@ def _describe(con: duckdb.DuckDBPyConnection, reader: str, table: TableSettings,
     try:
         rows = con.execute(f"DESCRIBE SELECT * FROM {reader}").fetchall()
     except duckdb.Error as exc:
-        first = str(exc).strip().splitlines()[0]
-        raise DataError(f"table {table.name}: cannot read {files[0]}{' (and others)' if len(files) > 1 else ''}: {first}") from None
+        raise DataError(f"table {table.name}: cannot read {files[0]}{' (and others)' if len(files) > 1 else ''}: "
+                        f"{read_hint(exc, table)}") from None
     return [(r[0], r[1]) for r in rows]
+
+
+def read_hint(exc: Exception, table: TableSettings) -> str:
+    """DuckDB's full cause of a read failure, with what to do for the common ones."""
+    cause = duckdb_cause(exc)
+    lower = cause.lower()
+    if "not utf-8" in lower or "invalid unicode" in lower:
+        hint = f"set tables.{table.name}.encoding = \"latin-1\" (or utf-16), or export the file as UTF-8"
+    elif "unterminated quote" in lower or "quote" in lower and "delimiter" in lower:
+        hint = "a quoted field is not closed (an unbalanced \" in a value); fix the quoting in the export"
+    elif "maximum line size" in lower or "max_line_size" in lower:
+        hint = "one field is longer than the reader allows (a broken line or an unclosed quote); fix the export"
+    elif "parquet" in lower or "footer" in lower or "magic" in lower:
+        hint = "the Parquet file is damaged or not Parquet; export it again"
+    else:
+        hint = "fix or export the file again"
+    return f"{cause}; {hint}"
+
+
+def _duplicate_header(con, table: TableSettings, contract: InputTable, reader: str, files: list[str]) -> None:
+    """A CSV header naming one column twice: an error when it is a contract column, else a warning."""
+    if table.format != "csv" or not table.header:
+        return
+    opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
+    opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
+    con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
+    try:
+        row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
+    except duckdb.Error:
+        return  # the full read reports the cause
+    if not row:
+        return
+    names = [str(v).strip() for v in row[0] if v is not None]
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if not repeated:
+        return
+    wanted = {table.export_column(c.name) for c in contract.columns}
+    clash = [n for n in repeated if n in wanted]
+    if clash:
+        raise DataError(
+            f"table {table.name}: the header of {files[0]} names column '{clash[0]}' {names.count(clash[0])} times; "
+            f"it is not clear which one to read: rename or drop the copies in the export"
+        )
+    warnings.warn(
+        f"table {table.name}: the header of {files[0]} names {', '.join(repr(n) for n in repeated)} more than once; "
+        f"the copies are read as {repeated[0]}_1, ... (not used by liftlag unless mapped)", DataWarning, stacklevel=2)
 
 
 def _match_names_loosely(table: TableSettings, contract: InputTable, found: list[str]) -> TableSettings:
@@ -117,13 +173,15 @@ def _match_names_loosely(table: TableSettings, contract: InputTable, found: list
 
 
 def _check_columns(settings: Settings, table: TableSettings, contract: InputTable, found: list[str], files: list[str]) -> None:
+    found = [c for c in found if c not in READER_COLUMNS]
     for name, wanted in table.columns.items():
-        # A mapping line names a column on purpose: one the export lacks is a mistake, even for
-        # an optional column (otherwise, say, list_amount would be silently derived instead).
-        if wanted not in found and not contract.column_is_required(name):
+        # A mapping line names a column on purpose: one the export lacks is a mistake in the
+        # config (exit 2), even for an optional column (otherwise, say, list_amount would be
+        # silently derived instead).
+        if wanted not in found:
             close = difflib.get_close_matches(wanted, found, n=3, cutoff=0.4)
             hint = f"closest columns: {', '.join(close)}" if close else f"columns found: {', '.join(found[:12])}"
-            raise DataError(
+            raise ConfigError(
                 f"table {table.name}: tables.{table.name}.columns.{name} = {wanted!r} names a column that is not "
                 f"in {files[0]}; {hint}; fix the name or remove the line"
             )
@@ -137,7 +195,7 @@ def _check_columns(settings: Settings, table: TableSettings, contract: InputTabl
     wanted = table.export_column(name)
     close = difflib.get_close_matches(wanted, found, n=3, cutoff=0.4)
     hint = f"closest columns: {', '.join(close)}" if close else f"columns found: {', '.join(found[:12])}"
-    single = len([c for c in found if c != "_source_file"]) == 1
+    single = len(found) == 1
     delimiter_hint = (
         f"; only one column was found, so the file may use another delimiter: set tables.{table.name}.delimiter"
         if single and table.format == "csv" else ""
@@ -178,7 +236,15 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
 
     if table.formats.get(column_name):
         var = f"liftlag_fmt_{table.name}_{column_name}"
-        con.execute(f"SET VARIABLE {var} = ?", [table.formats[column_name]])
+        fmt = table.formats[column_name]
+        try:
+            con.execute("SELECT try_strptime('2000-01-01', ?)", [fmt]).fetchall()
+        except duckdb.Error as exc:
+            raise ConfigError(
+                f"{table.name}: tables.{table.name}.formats.{column_name} = {fmt!r} is not a format DuckDB knows: "
+                f"{duckdb_cause(exc)}; use strptime codes such as \"%Y-%m-%d %H:%M:%S\" or \"%d/%m/%Y\""
+            ) from None
+        con.execute(f"SET VARIABLE {var} = ?", [fmt])
         typed = f"TRY_STRPTIME(trim({text}), getvariable('{var}'))"
     elif column_type == "VARCHAR":
         # Ids and codes are compared exactly downstream: in text files, surrounding spaces are dropped.
@@ -228,13 +294,14 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         files = resolve_files(settings, table)
         reader = _reader(con, table, files)
         described = _describe(con, reader, table, files)
+        _duplicate_header(con, table, contract, reader, files)
         found = [c for c, _ in described]
         found_types = dict(described)
         table = _match_names_loosely(table, contract, found)
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
-        extras = [c for c in found if c not in mapped and c not in ("_source_file", "file_row_number")] if contract.extra_columns else []
+        extras = [c for c in found if c not in mapped and c not in READER_COLUMNS] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
         # Parquet is read again by each step that needs it (a scan costs less than holding tens
@@ -250,8 +317,10 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
             con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
             rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:
-            first = str(exc).strip().splitlines()[0]
-            raise DataError(f"table {name}: cannot read {files[0]}: {first}") from None
+            if isinstance(exc, duckdb.InterruptException):
+                raise
+            where = files[0] if len(files) == 1 else f"{files[0]} (or another of its {len(files)} files)"
+            raise DataError(f"table {name}: cannot read {where}: {read_hint(exc, table)}") from None
         finally:
             con.execute("SET preserve_insertion_order = false")
         _define_staged_view(con, contract, extras, lazy=lazy)
