@@ -272,7 +272,7 @@ def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS HUGEINT) AS _row_id, "
         f"CAST(NULL AS BIGINT) AS _file_row, "
-        f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, "
+        f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, '' AS _unparseable_optional, "
         f"CAST(NULL AS UBIGINT) AS _row_hash, CAST(NULL AS VARCHAR) AS _raw_values WHERE false"
     )
 
@@ -338,6 +338,7 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     rows whose typed values cannot stand for what was read).
     """
     renamed, typed_cols, missing_parts, unparseable_parts, raw_texts = [], [], [], [], []
+    optional_parts = []  # (condition, column, original text): an optional value that does not parse
     for c in contract.columns:
         if c.name not in present:
             typed_cols.append(f"CAST(NULL AS {c.type}) AS {q(c.name)}")
@@ -351,25 +352,32 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
         raw_texts.append(f"{q(c.name)} := {text}")
         if c.required:
             missing_parts.append((blank, c.name))
-        # A value that is present but does not parse is unparseable.
-        unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name))
+        # A value that is present but does not parse is unparseable: a required one rejects its
+        # row; an optional one is left empty (NULL) and warned about, so it never drops the row
+        # nor, through it, the rows that reference it.
+        if c.required:
+            unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name))
+        else:
+            optional_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name, text))
     renamed += [f"{q(e)} AS {q('x_' + e)}" for e in extras]
     raw_texts += [f"{q(e)} := CAST({q('x_' + e)} AS VARCHAR)" for e in extras]
     extra_cols = [f"{q('x_' + e)} AS {q(e)}" for e in extras]
     names = [q(c.name) for c in contract.columns] + [q(e) for e in extras]
     missing = _names_where(missing_parts)
     unparseable = _names_where(unparseable_parts)
+    unparseable_optional = _values_where(optional_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
     key = ("(CAST(hash(_source_file) AS HUGEINT) * 1099511627776 + file_row_number) AS _row_key, "
            "file_row_number + 1 AS _file_row, ") if lazy else ""
     read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
-    facts = f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable FROM ({typed})"
-    problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' THEN {raw_struct} END AS _raw_problem "
-               f"FROM ({facts})")
+    facts = (f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable, "
+             f"{unparseable_optional} AS _unparseable_optional FROM ({typed})")
+    problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' OR _unparseable_optional <> '' "
+               f"THEN {raw_struct} END AS _raw_problem FROM ({facts})")
     keys = "_row_key, _file_row, " if lazy else ""
     return (
-        f"SELECT {keys}_source_file, {', '.join(names)}, _missing, _unparseable, _raw_problem, "
+        f"SELECT {keys}_source_file, {', '.join(names)}, _missing, _unparseable, _unparseable_optional, _raw_problem, "
         f"hash({', '.join(names)}, _raw_problem) AS _row_hash FROM ({problem})"
     )
 
@@ -387,6 +395,18 @@ def _names_where(conditions: list[tuple[str, str]]) -> str:
     return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
 
 
+def _values_where(conditions: list[tuple[str, str, str]]) -> str:
+    """``column = 'original text'`` for each optional column whose value did not parse ('' when none)."""
+    if not conditions:
+        return "''"
+    any_holds = " OR ".join(f"({cond})" for cond, _, _ in conditions)
+    parts = ", ".join(
+        "CASE WHEN " + cond + " THEN '" + name + " = ''' || left(" + text + ", 40) || '''' END"
+        for cond, name, text in conditions
+    )
+    return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
+
+
 def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool = False) -> None:
     """``staged_<table>``: the stage with its row key, its row in the file, a row hash and the
     values as text."""
@@ -396,7 +416,7 @@ def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool
     keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS HUGEINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
-        f"_source_file, {cols}, _missing, _unparseable, _row_hash, "
+        f"_source_file, {cols}, _missing, _unparseable, _unparseable_optional, _row_hash, "
         f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name)}"
     )
 
@@ -405,7 +425,8 @@ def staged_union_sql() -> list[str]:
     """``staged_all``: the row-level facts of every table, for table-independent rules; and
     ``staged_all_sources``: each row's file and original values, for the rejects."""
     parts = [
-        f"SELECT '{name}' AS table_name, _row_id, _file_row, _missing, _unparseable, _row_hash, _raw_values FROM {q('staged_' + name)}"
+        f"SELECT '{name}' AS table_name, _row_id, _file_row, _missing, _unparseable, _unparseable_optional, _row_hash, "
+        f"_raw_values FROM {q('staged_' + name)}"
         for name in INPUT_TABLES
     ]
     with_files = [
