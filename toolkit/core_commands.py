@@ -89,7 +89,8 @@ def cmd_sql(args) -> int:
         from .config import Settings
 
         parameters = panels.parameters(Settings(config_path=Path("liftlag.toml"), tables={}))
-    values = ", ".join(f"{k} = {v}" for k, v in parameters.items())
+    # An unset setting is bound as SQL NULL: say so in SQL's words, not Python's.
+    values = ", ".join(f"{k} = {'NULL (not set)' if v is None else v}" for k, v in parameters.items())
     for name in names:
         sql = panels.panel_sql(name)
         text = sql if dialect == "duckdb" else transpile(sql, dialect, parameters)

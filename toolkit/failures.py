@@ -189,12 +189,30 @@ def _describe_duckdb(exc, args) -> Failure:
         config = getattr(args, "config", None) or "liftlag.toml"
         return Failure(f"the workspace lacks a table or column this step needs ({cause}); rebuild it with "
                        f"`liftlag build --force -c {config}`", 1)
+    located = _locate_unreadable(args)
+    if located is not None:
+        table, filename, file_cause = located
+        return Failure(f"table {table}: {filename} cannot be read ({file_cause}); the file is damaged or not "
+                       f"Parquet: export it again (the query failed with: {cause})", 3)
     if (isinstance(exc, (duckdb.InvalidInputException, duckdb.ConversionException, duckdb.IOException))
             or "parquet" in lower or "csv" in lower):
         return Failure(f"a file of the export cannot be read: {cause}; export it again or fix it, "
                        f"then run `liftlag check`", 3)
     return Failure(f"the query engine failed: {cause}; if the message names a file, check it, "
                    f"otherwise please report it with the command you ran", 1)
+
+
+def _locate_unreadable(args):
+    """Name the export file behind a read failure that does not name it (failure path only)."""
+    config_path = getattr(args, "config", None)
+    if not config_path:
+        return None
+    try:
+        from . import config, sources
+
+        return sources.locate_unreadable(config.load(config_path))
+    except Exception:  # noqa: BLE001 - best effort; the original cause is still reported
+        return None
 
 
 def _quoted_path(text: str) -> str | None:

@@ -446,3 +446,33 @@ def fingerprint_files(files) -> list[dict]:
         st = Path(f).stat()
         out.append({"path": str(f), "bytes": st.st_size, "modified_ns": st.st_mtime_ns})
     return out
+
+
+def locate_unreadable(settings: Settings) -> tuple[str, str, str] | None:
+    """(table, file, cause) of the first export file that cannot be read through, or None.
+
+    Only on the failure path: Parquet is read lazily, so a damaged data page surfaces in whatever
+    query first decodes it, with a message that may not name the file. Each file is decoded in
+    full here, one at a time, to name it.
+    """
+    from .engine.duckdb import connect as engine_connect
+
+    con = engine_connect(settings)
+    try:
+        for name, table in settings.tables.items():
+            if table.format != "parquet":
+                continue
+            try:
+                files = resolve_files(settings, table)
+            except (ConfigError, DataError):
+                continue
+            for f in files:
+                try:
+                    con.execute("SELECT max(hash(COLUMNS(*))) FROM read_parquet(?)", [f]).fetchall()
+                except duckdb.InterruptException:
+                    raise
+                except duckdb.Error as exc:
+                    return name, f, duckdb_cause(exc)
+    finally:
+        con.close()
+    return None

@@ -25,6 +25,8 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_campaign, run_campaigns, write_campaign
 
@@ -37,11 +39,11 @@ def run_command(args) -> int:
         started = time.perf_counter()
         facts = run_campaigns(settings, out, console=console)
         for pid, reason in facts["skipped"].items():
-            err_console.print(f"[yellow]skipped {pid}:[/] {reason}")
+            err_console.print(f"[yellow]skipped {escape(str(pid))}:[/] {escape(str(reason))}")
         if not facts["campaigns"]:
             raise AnalysisError("no targeted campaign could be analysed" + (
                 "" if facts["skipped"] else ": the workspace has no targeted promotion with assigned customers"))
-        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{out}[/]")
+        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{escape(str(out))}[/]")
         return 0
     con = workspace.connect(settings)
     try:
@@ -52,18 +54,19 @@ def run_command(args) -> int:
     _print_summary(console, readout)
     for level, message in readout.notes:
         if level == "warning":
-            err_console.print(f"[yellow]note:[/] {message}")
+            err_console.print(f"[yellow]note:[/] {escape(str(message))}")
     html = [p for p in paths if p.suffix == ".html"]
-    console.print(f"readout: [bold]{html[0] if html else out}[/] (tables beside it)")
+    console.print(f"readout: [bold]{escape(str(html[0] if html else out))}[/] (tables beside it)")
     return 0
 
 
 def _print_summary(console, readout) -> None:
+    from rich.markup import escape
     from rich.table import Table
 
     status = readout.randomisation_check
     colour = {"passed": "green", "not run": "yellow"}.get(status, "bold red")
-    table = Table(title=f"campaign {readout.promotion_id}: randomisation check [{colour}]{status}[/]")
+    table = Table(title=f"campaign {escape(str(readout.promotion_id))}: randomisation check [{colour}]{escape(status)}[/]")
     for col in ("outcome", "window", "lift", "interval", "relative lift"):
         table.add_column(col, justify="left" if col in ("outcome", "window") else "right")
     summary = readout.summary

@@ -27,6 +27,8 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_timing, options_from, write_timing
 
@@ -40,8 +42,8 @@ def run_command(args) -> int:
     write_timing(readout, out)
     _print_summary(console, readout)
     for note in readout.notes:
-        err_console.print(f"[yellow]note:[/] {note}")
-    console.print(f"timing tables in [bold]{out}[/] ({', '.join(sorted(readout.tables))})")
+        err_console.print(f"[yellow]note:[/] {escape(str(note))}")
+    console.print(f"timing tables in [bold]{escape(str(out))}[/] ({', '.join(sorted(readout.tables))})")
     return 0
 
 
