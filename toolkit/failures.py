@@ -67,6 +67,7 @@ def interrupt_guard():
 # ---------------------------------------------------------------------------- DuckDB's messages
 
 _OPTION_LINE = re.compile(r"^\s{2}[a-z_]+ = .*")
+_LONGEST = 200  # characters of one line of the cause (an "Original Line" may be megabytes)
 _IGNORE_ERRORS = re.compile(r"ignore.errors|ignore_errors", re.I)
 
 
@@ -81,9 +82,10 @@ def duckdb_cause(exc: BaseException) -> str:
             continue
         if _OPTION_LINE.match(line) and not line.strip().startswith("file ="):
             continue
-        if _IGNORE_ERRORS.search(line):
-            continue
-        lines.append(line.strip())
+        if _IGNORE_ERRORS.search(line) or line.startswith("Possible Solution"):
+            continue  # DuckDB's reader options, which liftlag's config does not expose
+        line = line.strip()
+        lines.append(line if len(line) <= _LONGEST else line[:_LONGEST] + f"... ({len(line):,} characters)")
     text = "; ".join(part.rstrip(".;") for part in lines if part)
     return text or type(exc).__name__
 
