@@ -82,7 +82,9 @@ def duckdb_cause(exc: BaseException) -> str:
             continue
         if _OPTION_LINE.match(line) and not line.strip().startswith("file ="):
             continue
-        if _IGNORE_ERRORS.search(line) or line.startswith("Possible Solution"):
+        if (_IGNORE_ERRORS.search(line) or line.startswith(("Possible Solution", "* ", "Possible fixes"))
+                or "search space used" in line or line.startswith(("Delimiter Candidates", "Quote/Escape Candidates",
+                                                                   "Comment Candidates"))):
             continue  # DuckDB's reader options, which liftlag's config does not expose
         line = line.strip()
         lines.append(line if len(line) <= _LONGEST else line[:_LONGEST] + f"... ({len(line):,} characters)")

@@ -116,9 +116,13 @@ def read_hint(exc: Exception, table: TableSettings) -> str:
     """DuckDB's full cause of a read failure, with what to do for the common ones."""
     cause = duckdb_cause(exc)
     lower = cause.lower()
-    if "not utf-8" in lower or "invalid unicode" in lower:
+    if "sniffing" in lower or "automatically detect" in lower:
+        hint = (f"the file's layout (delimiter, quoting, line endings) could not be detected: check that every line "
+                f"has the same number of fields and the same line ending; set tables.{table.name}.delimiter if it is "
+                f"not a comma")
+    elif "not utf-8" in lower or "invalid unicode" in lower:
         hint = f"set tables.{table.name}.encoding = \"latin-1\" (or utf-16), or export the file as UTF-8"
-    elif "unterminated quote" in lower or "quote" in lower and "delimiter" in lower:
+    elif "unterminated quote" in lower or "unterminated quoted" in lower:
         hint = "a quoted field is not closed (an unbalanced \" in a value); fix the quoting in the export"
     elif "maximum line size" in lower or "max_line_size" in lower:
         hint = "one field is longer than the reader allows (a broken line or an unclosed quote); fix the export"
