@@ -17,6 +17,7 @@ import duckdb
 
 from .contract import INPUT_TABLES
 from .errors import ConfigError, DataError, DataWarning
+from .failures import duckdb_cause
 
 SYNONYMS: dict[str, tuple[str, ...]] = {
     "order_id": ("order_id", "order", "order_no", "order_number", "basket", "basket_id", "basket_no",
@@ -148,7 +149,7 @@ def _describe(con, sql: str, params, where: Path) -> list[tuple[str, str]]:
     try:
         rows = con.execute(f"DESCRIBE {sql}", params).fetchall()
     except duckdb.Error as exc:
-        raise DataError(f"cannot read {where}: {str(exc).splitlines()[0]}") from None
+        raise DataError(f"cannot read {where}: {duckdb_cause(exc)}") from None
     return [(r[0], r[1]) for r in rows]
 
 

@@ -3,9 +3,11 @@
 Each configured table is read once, in one pass, into a temporary table ``stage_<table>``: every
 contract column under its contract name and type (TRY_CAST / TRY_STRPTIME, so an unparseable value
 becomes a rejected row, never a crash or a silent NULL), value mappings applied, and the row-level
-facts the checks need: ``_missing`` and ``_unparseable`` (the names of the offending columns,
-comma-separated, empty when none) and ``_raw_problem`` (the original text of the row, kept only
-for rows with such a fault). The view ``staged_<table>`` adds ``_row_id`` (the stage's row
+facts the checks need: ``_missing`` (the names of required columns left empty), ``_unparseable``
+(``column = 'text'`` for each required value that does not parse) and ``_unparseable_optional``
+(the same for optional values, which are left NULL and only warned about) — comma-separated,
+empty when none — and ``_raw_problem`` (the original text of the row, kept only for rows with
+such a fault). The view ``staged_<table>`` adds ``_row_id`` (the stage's row
 number), ``_row_hash`` (of all values, for the exact-duplicate rule) and ``_raw_values`` (the
 original text, or the typed values as text where every value parsed). Tables that are optional
 and not configured get an empty staged view of the same shape.
@@ -360,7 +362,7 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
         # row; an optional one is left empty (NULL) and warned about, so it never drops the row
         # nor, through it, the rows that reference it.
         if c.required:
-            unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name))
+            unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name, text))
         else:
             optional_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name, text))
     renamed += [f"{q(e)} AS {q('x_' + e)}" for e in extras]
@@ -368,7 +370,7 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     extra_cols = [f"{q('x_' + e)} AS {q(e)}" for e in extras]
     names = [q(c.name) for c in contract.columns] + [q(e) for e in extras]
     missing = _names_where(missing_parts)
-    unparseable = _names_where(unparseable_parts)
+    unparseable = _values_where(unparseable_parts)  # the value as written, so the reason shows it
     unparseable_optional = _values_where(optional_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
     key = ("(CAST(hash(_source_file) AS HUGEINT) * 1099511627776 + file_row_number) AS _row_key, "
@@ -400,7 +402,7 @@ def _names_where(conditions: list[tuple[str, str]]) -> str:
 
 
 def _values_where(conditions: list[tuple[str, str, str]]) -> str:
-    """``column = 'original text'`` for each optional column whose value did not parse ('' when none)."""
+    """``column = 'original text'`` for each column whose value did not parse ('' when none)."""
     if not conditions:
         return "''"
     any_holds = " OR ".join(f"({cond})" for cond, _, _ in conditions)
