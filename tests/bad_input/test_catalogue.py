@@ -224,6 +224,25 @@ def ends_before_starts(cfg):
     return build(cfg)
 
 
+def required_column_absent(cfg):
+    path = tx(cfg)
+    lines = path.read_text().splitlines()
+    path.write_text("\n".join([lines[0].replace("product_id", "zzz")] + lines[1:]) + "\n")
+    return check(cfg)
+
+
+def required_column_absent_parquet(cfg):
+    import duckdb as db
+
+    path = cfg.parent / "transactions.parquet"
+    con = db.connect()
+    con.execute("COPY (SELECT * EXCLUDE (product_id) FROM read_parquet(?)) TO ? (FORMAT parquet)",
+                [str(path), str(path) + ".tmp"])
+    con.close()
+    Path(str(path) + ".tmp").replace(path)
+    return check(cfg)
+
+
 def path_matching_nothing(cfg):
     cfg.write_text(cfg.read_text().replace('path = "transactions.csv"', 'path = "nowhere/*.csv"'))
     return build(cfg)
@@ -355,6 +374,10 @@ CASES = [
     Case("empty_file", empty_file, 3, "is empty (0 bytes)", good_workspace_first=True),
     Case("wrong_delimiter", wrong_delimiter, 3, "may use another delimiter"),
     Case("promotion_ends_before_it_starts", ends_before_starts, 3, "before it starts"),
+    Case("required_column_absent", required_column_absent, 3, "required column 'product_id'",
+         absent=("_source_file",)),
+    Case("required_column_absent_parquet", required_column_absent_parquet, 3, "required column 'product_id'",
+         absent=("_source_file", "file_row_number"), export={"parquet": True}),
     # Config mistakes: exit 2, naming the key.
     Case("path_matching_no_file", path_matching_nothing, 2, "matches no file", good_workspace_first=True),
     Case("mapped_optional_column_absent", mapped_optional_column_absent, 2, "tables.transactions.columns.list_amount",
