@@ -91,6 +91,14 @@ def input_fingerprint(settings: Settings) -> tuple[str, dict]:
     return workspace.fingerprint(config, files, rules, source_code), files
 
 
+def _shifted(moment: dt.datetime, days: int) -> dt.datetime:
+    """``moment`` plus ``days``, held within the calendar (a huge horizon means no horizon)."""
+    try:
+        return moment + dt.timedelta(days=days)
+    except OverflowError:
+        return dt.datetime.max if days > 0 else dt.datetime.min
+
+
 def _allowed_text(settings: Settings, table: str, column: str, allowed: tuple[str, ...]) -> str:
     """What a coded column may hold, in the export's own codes where the config maps them."""
     mapping = settings.tables[table].values.get(column, {}) if table in settings.tables else {}
@@ -196,11 +204,9 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)
     con.execute("SET VARIABLE checked_at = ?", [now])
     horizon = settings.checks
-    earliest = now.replace(year=now.year - horizon.past_years) if not (now.month == 2 and now.day == 29) else (
-        now - dt.timedelta(days=round(365.25 * horizon.past_years)))
-    con.execute("SET VARIABLE horizon_earliest = ?", [earliest])
-    con.execute("SET VARIABLE horizon_latest = ?", [now + dt.timedelta(days=horizon.future_days)])
-    con.execute("SET VARIABLE horizon_promotion_latest = ?", [now + dt.timedelta(days=horizon.promotion_future_days)])
+    con.execute("SET VARIABLE horizon_earliest = ?", [_shifted(now, -round(365.2425 * horizon.past_years))])
+    con.execute("SET VARIABLE horizon_latest = ?", [_shifted(now, horizon.future_days)])
+    con.execute("SET VARIABLE horizon_promotion_latest = ?", [_shifted(now, horizon.promotion_future_days)])
     con.execute(
         "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id HUGEINT, rule VARCHAR, "
         "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"

@@ -85,7 +85,7 @@ def test_campaign_all_writes_every_readout_when_an_id_holds_markup(small_demo, t
 def test_readout_mentions_customers_in_both_arms(small_demo, tmp_path, capsys):
     code, out = run_cli(["campaign", "FW-T02", "-c", small_demo, "--out", tmp_path], capsys)
     assert code == 0, out
-    assert "1 customers were assigned to both the treatment and the holdout" in out
+    assert "1 customer was assigned to both the treatment and the holdout" in out
     notes = duckdb.connect().execute("SELECT message FROM read_parquet(?)",
                                      [str(tmp_path / "campaign_notes.parquet")]).fetchall()
     assert any("both the treatment and the holdout" in m for (m,) in notes)

@@ -214,7 +214,8 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
     readout.meta["input_fingerprint"] = _build_fingerprint(settings)
     both = _both_arms(con, str(promotion_id))
     if both:
-        message = (f"{both:,} customers were assigned to both the treatment and the holdout of this promotion; "
+        who = "1 customer was" if both == 1 else f"{both:,} customers were"
+        message = (f"{who} assigned to both the treatment and the holdout of this promotion; "
                    f"each is counted in the arm of their earliest assignment (check the assignment export)")
         readout.notes.append(("warning", message))
         notes_table = readout.tables.get("campaign_notes")
