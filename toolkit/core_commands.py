@@ -48,6 +48,10 @@ def cmd_check(args) -> int:
     from .results import write_tables
 
     settings = config.load(args.config)
+    if args.out:
+        from .results import check_out_dir
+
+        check_out_dir(args.out)
     with console.status("checking the export…") as status:
         result = checks.run(settings, progress=lambda text: status.update(f"check: {text}"))
     print_check(result)

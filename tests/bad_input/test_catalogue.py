@@ -287,6 +287,11 @@ def out_is_a_file(cfg):
     return ["check", "-c", cfg, "--out", cfg.parent / "results"]
 
 
+def timing_out_under_a_file(cfg):
+    (cfg.parent / "results").write_text("not a folder")
+    return ["timing", "-c", cfg, "--out", cfg.parent / "results" / "timing"]  # refused before any work
+
+
 def workspace_under_a_file(cfg):
     (cfg.parent / "afile").write_text("x")
     cfg.write_text(cfg.read_text().replace('path = ".liftlag"', 'path = "afile/ws"'))
@@ -390,6 +395,7 @@ CASES = [
     Case("config_not_toml", config_not_toml, 2, "not valid TOML"),
     Case("config_is_a_folder", config_is_a_folder, 2, "is a folder, not a config file"),
     Case("out_is_a_file", out_is_a_file, 2, "give --out a folder"),
+    Case("timing_out_under_a_file", timing_out_under_a_file, 2, "which is a file"),
     Case("workspace_path_under_a_file", workspace_under_a_file, 2, "[workspace] path"),
     Case("unknown_config_key", unknown_key, 2, "did you mean 'margin_rate'"),
     # Analyses on data that cannot answer: a message, never a traceback.

@@ -33,8 +33,10 @@ def run_command(args) -> int:
     if bool(args.promotion_id) == bool(args.all):
         raise ConfigError("give one PROMOTION_ID or --all (not both, not neither); "
                           "`liftlag campaign --all -c liftlag.toml` reads out every targeted campaign")
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
-    out = Path(args.out)
+    out = check_out_dir(args.out)
     if args.all:
         started = time.perf_counter()
         facts = run_campaigns(settings, out, console=console)

@@ -32,7 +32,10 @@ def run_command(args) -> int:
     from ..console import console, err_console
     from .api import analyse_timing, options_from, write_timing
 
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
+    check_out_dir(args.out)
     con = workspace.connect(settings)
     try:
         readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
