@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import sources, workspace
+from . import sources, sqlfiles, workspace
 from .config import Settings
 from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
 from .engine.duckdb import connect as engine_connect
@@ -24,8 +24,8 @@ from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError
 
-SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
-CHECKS_DIR = SQL_DIR / "checks"
+SQL_DIR = sqlfiles.root()  # sql/ in a clone, toolkit/sql in an installed package
+CHECKS_DIR = sqlfiles.folder("checks")
 
 
 @dataclass(frozen=True)
