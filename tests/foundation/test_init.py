@@ -19,7 +19,8 @@ def test_init_guesses_renamed_columns_and_coded_arms_and_the_result_checks_clean
     tx.unlink()
     assert cli.main(["init", str(cfg.parent)]) == 0
     out = capsys.readouterr().out
-    assert "order_id <- invoice_no (guessed" in out and "arm treatment <- 'T'" in out
+    assert "order_id <- invoice_no (sure: name 'invoice_no' is a usual name for it" in out
+    assert "arm treatment <- 'T' (NOT SURE" in out
     written = tomllib.loads(cfg.read_text())
     columns = written["tables"]["transactions"]["columns"]
     assert columns == {"order_id": "invoice_no", "customer_id": "client_ref", "ordered_at": "created",
