@@ -248,3 +248,17 @@ def test_day_first_dates_and_coded_kinds_get_a_format_and_a_value_map(tmp_path):
     assert written["tables"]["promotions"]["formats"] == {"starts_at": "%d/%m/%Y", "ends_at": "%d/%m/%Y"}
     assert written["tables"]["promotions"]["values"]["mechanic"] == {"percent_off": "percent", "amount_off": "fixed"}
     assert written["tables"]["assignments"]["values"]["arm"] == {"treatment": "test", "holdout": "control"}
+
+
+def test_a_file_that_only_resembles_assignments_is_not_taken_for_them(tmp_path):
+    """Optional tables are taken only with every required column found: coupon redemptions, with a
+    promotion and a customer column but no arm and no time, are not campaign assignments."""
+    monthly_root_export(tmp_path)
+    write_csv(tmp_path / "coupon_redemptions.csv", ["promotion_id", "customer_id", "ticket"],
+              [("SPRING10", "K0001", "3-00001"), ("SPRING10", "K0001", "3-00002"), ("BULBS3", "K0002", "3-00003"),
+               ("BULBS3", "K0002", "3-00004")])
+    assert cli.main(["init", str(tmp_path)]) == 0
+    text = (tmp_path / "liftlag.toml").read_text()
+    assert "assignments" not in tomllib.loads(text)["tables"]
+    assert ("# [tables.assignments]  -- coupon_redemptions.csv looked like it but has no arm, assigned_at: "
+            "not taken") in text

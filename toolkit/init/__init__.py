@@ -25,8 +25,9 @@ def write_starter_config(export_dir: Path, output: Path | None = None, force: bo
     target = output or (export_dir / "liftlag.toml")
     if target.exists() and not force:
         raise ConfigError(f"{target} exists; pass --force to overwrite it, or -o to write elsewhere")
-    guesses = guess_export(find_candidates(export_dir))
-    text, report = render_config(guesses)
+    passed_over: dict = {}
+    guesses = guess_export(find_candidates(export_dir), passed_over)
+    text, report = render_config(guesses, passed_over)
     if output is not None and output.resolve().parent != export_dir:
         text = text.replace('path = "', f'path = "{export_dir.as_posix()}/')
         text = text.replace(f'path = "{export_dir.as_posix()}/.liftlag"', 'path = ".liftlag"')

@@ -128,7 +128,7 @@ def name_match(export_name: str, contract_column: str) -> tuple[float, bool]:
         if name == syn:
             return 1.0 - i * 0.001, True
         best = max(best, difflib.SequenceMatcher(None, name, syn).ratio() * 0.8)
-    return best, False
+    return (best if best >= 0.5 else 0.0), False  # a faint resemblance is no evidence
 
 
 def value_map(column: str, distinct: set[str]) -> tuple[dict[str, str], bool] | None:
@@ -180,6 +180,8 @@ def column_evidence(table: str, contract_column: str, prof: ColumnProfile) -> li
     else:  # text: ids, codes, names
         if prof.is_date:
             return None
+        if contract_column.endswith("_id") and prof.is_number and prof.integer_share < 0.99:
+            return None  # 0.37 is an amount or a score, not an id
         if exact:
             out.append(Evidence(0.0, True, ""))  # a usual name, and text fits any id or code
         allowed = INPUT_TABLES[table].allowed_values.get(contract_column)
@@ -230,22 +232,23 @@ def guess_columns(table: str, profiles: dict[str, ColumnProfile],
     return out
 
 
-def table_score(table: str, cand: Candidate, profiles: dict[str, ColumnProfile]) -> float:
+def table_score(table: str, cand: Candidate, profiles: dict[str, ColumnProfile]) -> tuple[float, float]:
+    """(score, share of the table's required columns found) of a candidate for a table."""
     guessed = guess_columns(table, profiles)
     required = INPUT_TABLES[table].required
     covered = sum(1 for r in required if r in guessed) / len(required)
     hint = 0.3 if any(h in cand.path.lower() for h in TABLE_HINTS[table]) else 0.0
-    return covered + hint + 0.01 * len(guessed)
+    return covered + hint + 0.01 * len(guessed), covered
 
 
 def assign_tables(candidates: list[Candidate], profiles: list[dict[str, ColumnProfile]]) -> dict[str, int]:
     """table -> index of its candidate, greedily by score."""
-    pairs = sorted(((table_score(t, c, p), t, i) for t in INPUT_TABLES for i, (c, p) in enumerate(zip(candidates, profiles))),
+    pairs = sorted(((*table_score(t, c, p), t, i) for t in INPUT_TABLES for i, (c, p) in enumerate(zip(candidates, profiles))),
                    reverse=True)
     chosen: dict[str, int] = {}
     used: set[int] = set()
-    for score, table, i in pairs:
-        if table in chosen or i in used or score < 0.5:
+    for score, covered, table, i in pairs:
+        if table in chosen or i in used or covered < 0.5:
             continue
         chosen[table] = i
         used.add(i)
@@ -295,9 +298,9 @@ def relate_keys(guesses: dict[str, TableGuess], extra: dict[str, dict]) -> None:
             (share, found), key, col, of = best
             sure = share >= 0.9
             add(child_table, "promotion_id", col.name, Evidence(1.0 if sure else 0.5, sure,
-                f"{found} of its {of} distinct values are promotions.{key.name} values"))
+                f"{found:,} of its {of:,} distinct values are promotions.{key.name} values"))
             add("promotions", "promotion_id", key.name, Evidence(1.0 if sure else 0.5, sure,
-                f"its values are the {child_table}' {col.name} values ({found} of {of} found)"))
+                f"its values are the {child_table}' {col.name} values ({found:,} of {of:,} found)"))
             claimed[child_table].add(col.name)
             claimed["promotions"].add(key.name)
     for parent_table, contract_column, children in (
@@ -307,13 +310,19 @@ def relate_keys(guesses: dict[str, TableGuess], extra: dict[str, dict]) -> None:
         parent = guesses.get(parent_table)
         if parent is None:
             continue
+        # The parent's column: the one its names point to, else one its names leave unused.
+        by_name = guess_columns(parent_table, parent.profiles)
+        if contract_column in by_name:
+            allowed = {by_name[contract_column].column}
+        else:
+            allowed = set(parent.profiles) - {g.column for g in by_name.values()}
         for child_table in children:
             child = guesses.get(child_table)
             if child is None:
                 continue
             best = None
             for pcol in parent.profiles.values():
-                if pcol.name in claimed[parent_table] or not _codes(pcol):
+                if pcol.name in claimed[parent_table] or pcol.name not in allowed or not _codes(pcol):
                     continue
                 for ccol in child.profiles.values():
                     if ccol.name in claimed[child_table] or not _codes(ccol):
@@ -327,9 +336,9 @@ def relate_keys(guesses: dict[str, TableGuess], extra: dict[str, dict]) -> None:
             (share, found), pcol, ccol, of = best
             sure = share >= 0.8
             add(child_table, contract_column, ccol.name, Evidence(0.8 if sure else 0.4, sure,
-                f"{found} of its {of} distinct values are {parent_table}.{pcol.name} values"))
+                f"{found:,} of its {of:,} distinct values are {parent_table}.{pcol.name} values"))
             add(parent_table, contract_column, pcol.name, Evidence(0.8 if sure else 0.4, sure,
-                f"holds {found} of the {of} {child_table}.{ccol.name} values"))
+                f"holds {found:,} of the {of:,} {child_table}.{ccol.name} values"))
 
 
 def lone_date(tg: TableGuess, extra: dict) -> None:
@@ -436,8 +445,13 @@ def finish(tg: TableGuess) -> None:
                                  prof.date_note or f"{prof.date_share:.0%} of sampled values parse with it")
 
 
-def guess_export(candidates: list[Candidate]) -> dict[str, TableGuess]:
-    """Every table's guess: which candidate, which columns (with evidence), value maps and formats."""
+def guess_export(candidates: list[Candidate], passed_over: dict | None = None) -> dict[str, TableGuess]:
+    """Every table's guess: which candidate, which columns (with evidence), value maps and formats.
+
+    ``passed_over`` (if given) receives, for an optional table, the candidate that resembled it
+    but lacked required columns, with those columns.
+    """
+    passed_over = {} if passed_over is None else passed_over
     samples = [sample(c) for c in candidates]
     profiles = [profile(s, dict(c.columns)) for s, c in zip(samples, candidates)]
     chosen = assign_tables(candidates, profiles)
@@ -453,7 +467,14 @@ def guess_export(candidates: list[Candidate]) -> dict[str, TableGuess]:
         relate_amounts(guesses["transactions"], extra)
     if "promotions" in guesses:
         relate_dates(guesses["promotions"], extra)
-    for table, tg in guesses.items():
+    for table, tg in list(guesses.items()):
         tg.columns = guess_columns(table, tg.profiles, extra.get(table))
         finish(tg)
+        # A required table is taken with half its columns found (the rest are asked for); an
+        # optional one only with all of them, so that, say, a results file of customer scores is
+        # not taken for campaign assignments.
+        missing = [c for c in INPUT_TABLES[table].required if c not in tg.columns]
+        if INPUT_TABLES[table].optional and missing:
+            del guesses[table]
+            passed_over[table] = (tg.candidate, missing)
     return guesses

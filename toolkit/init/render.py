@@ -32,14 +32,21 @@ def _path_line(tg: TableGuess) -> tuple[str, str]:
     return f"path = {_toml_string(cand.path)}  {_mark(sure, why)}", f"{tg.table}: {cand.label}"
 
 
-def render_config(guesses: dict[str, TableGuess]) -> tuple[str, list[str]]:
-    """(the TOML text, the summary lines to print)."""
+def render_config(guesses: dict[str, TableGuess], passed_over: dict | None = None) -> tuple[str, list[str]]:
+    """(the TOML text, the summary lines to print); ``passed_over`` as from ``guess_export``."""
+    passed_over = passed_over or {}
     lines = ["# liftlag.toml written by `liftlag init`. Read every line marked 'guessed', above all",
              "# those marked NOT SURE, before you trust the results.", ""]
     report: list[str] = []
     for table, contract in INPUT_TABLES.items():
         tg = guesses.get(table)
-        if tg is None:
+        if tg is None and table in passed_over:
+            cand, missing = passed_over[table]
+            lines += [f"# [tables.{table}]  -- {cand.path} looked like it but has no {', '.join(missing)}: not taken;",
+                      f"# add [tables.{table}] with its path and columns if it is the {table} table", ""]
+            report.append(f"{table}: not taken: {cand.label} lacks {', '.join(missing)} (optional table)")
+            continue
+        elif tg is None:
             if table == "assignments":
                 lines += ["# [tables.assignments]  -- no file looked like campaign assignments; add its path if the",
                           "# export has targeted campaigns (without it, there is no targeted campaign to read out)", ""]
