@@ -131,8 +131,8 @@ def name_match(export_name: str, contract_column: str) -> tuple[float, bool]:
     return (best if best >= 0.5 else 0.0), False  # a faint resemblance is no evidence
 
 
-def value_map(column: str, distinct: set[str]) -> tuple[dict[str, str], bool] | None:
-    """contract value -> export value when every export value reads as one contract value; (map, exact)."""
+def value_map(column: str, distinct: set[str]) -> dict[str, str] | None:
+    """contract value -> export value when every export value reads as one contract value, else None."""
     words = VALUE_WORDS[column]
     found: dict[str, str] = {}
     for value in sorted(distinct):
@@ -141,8 +141,7 @@ def value_map(column: str, distinct: set[str]) -> tuple[dict[str, str], bool] | 
         if len(hits) != 1 or hits[0] in found:
             return None
         found[hits[0]] = value
-    exact = all(found[c] == c for c in found)
-    return found, exact
+    return found
 
 
 def _shown(values, at_most: int = 4) -> str:
@@ -189,8 +188,7 @@ def column_evidence(table: str, contract_column: str, prof: ColumnProfile) -> li
             lower = {v.strip().lower() for v in prof.distinct}
             if lower and lower <= set(allowed):
                 out.append(Evidence(1.0, True, f"its values ({_shown(prof.distinct)}) are allowed {contract_column} values"))
-            elif len(prof.distinct) <= 12 and (mapped := value_map(contract_column, prof.distinct)) is not None:
-                mapping, _ = mapped
+            elif len(prof.distinct) <= 12 and (mapping := value_map(contract_column, prof.distinct)) is not None:
                 shown = ", ".join(f"{k} = {v}" for k, v in mapping.items())
                 out.append(Evidence(0.6, name_score >= 0.5, f"its values read as {contract_column} values ({shown})"))
             elif len(prof.distinct) > 20:
@@ -427,9 +425,8 @@ def finish(tg: TableGuess) -> None:
         contract = INPUT_TABLES[tg.table]
         if cname in contract.allowed_values and prof.distinct:
             if not {v for v in prof.distinct} <= set(contract.allowed_values[cname]):
-                mapped = value_map(cname, prof.distinct)
-                if mapped is not None:
-                    mapping, _ = mapped
+                mapping = value_map(cname, prof.distinct)
+                if mapping is not None:
                     mapping = {k: v for k, v in mapping.items() if k != v}
                     # Sure only when the values are the contract's own words in another case
                     # (Targeted); a code (T, C) or another word (fixed) is a reading to confirm.
