@@ -25,7 +25,7 @@ from dataclasses import dataclass
 from rich.markup import escape
 
 from . import freshness, workspace
-from .errors import AnalysisError, LiftlagError, WorkspaceBusy
+from .errors import AnalysisError, ConfigError, DataError, LiftlagError, WorkspaceBusy
 
 
 @dataclass
@@ -116,7 +116,7 @@ def ensure_built(settings, console=None, *, use_last_good: bool | None = None, e
     try:
         record = freshness.current(settings)
     except LiftlagError as exc:  # an input is gone or empty: the build will say so (and fail)
-        record, reasons, fp = None, [str(exc)], None
+        record, reasons, fp = None, [f"an input cannot be read: {str(exc).splitlines()[0][:200]}"], None
     else:
         fp = freshness.build_fingerprint(record)
         if published is not None and published.get("fingerprint") == fp:
@@ -126,9 +126,9 @@ def ensure_built(settings, console=None, *, use_last_good: bool | None = None, e
     failure = _failure_from_state(settings)
     if fp is not None and failure.get("status") == "failed" and failure.get("fingerprint") == fp:
         # These very inputs and settings failed to build before; building again would fail alike.
-        error = AnalysisError(f"the last build of these inputs failed at {failure.get('at')}: {failure.get('reason')}; "
-                              f"fix it and run `liftlag build -c {settings.config_path}`")
-        error.exit_code = failure.get("exit_code") or 1
+        kind = {2: ConfigError, 3: DataError}.get(failure.get("exit_code"), AnalysisError)
+        error = kind(f"the last build of these inputs failed at {failure.get('at')}: {failure.get('reason')}\n"
+                     f"fix it and run `liftlag build -c {settings.config_path}`")
         return _after_failure(settings, error, failure, published, use_last_good, err_console)
     if not settings.workspace.auto_build:
         what = "missing" if published is None else "stale"
