@@ -69,6 +69,10 @@ def run_build(settings, force: bool = False, *, wait: float | None = None):
     if result.skipped:
         console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
     else:
+        if result.reasons:
+            from .freshness import summary
+
+            console.print(f"built because: {escape(summary(result.reasons))}")
         table = Table(title=f"panels ({time.perf_counter() - started:.1f} s)")
         for col in ("panel", "rows", "seconds"):
             table.add_column(col, justify="left" if col == "panel" else "right")
