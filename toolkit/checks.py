@@ -181,7 +181,8 @@ def run(settings: Settings, progress=None, *, notify=None) -> CheckResult:
     return result
 
 
-def validate(con, settings: Settings, progress=None, *, checked_path: Path | None = None) -> CheckResult:
+def validate(con, settings: Settings, progress=None, *, checked_path: Path | None = None,
+             fingerprint: str | None = None) -> CheckResult:
     """Stage the export on ``con``, run every rule and write the checked tables.
 
     Leaves on ``con`` the temporary views ``accepted_<table>`` (accepted rows, typed, with the
@@ -192,10 +193,12 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
     checked_path : Path, optional
         Where to write the checked tables (a private file of the caller, who publishes it). By
         default they are written to a private file and published as ``checked.duckdb``.
+    fingerprint : str, optional
+        The check's fingerprint when the caller has it (``toolkit.freshness.check_fingerprint``).
     """
     started = time.perf_counter()
     say = progress or (lambda text: None)
-    fp, _ = input_fingerprint(settings)
+    fp = fingerprint or input_fingerprint(settings)[0]
     infos = sources.register(con, settings, progress=say)
     for statement in sources.staged_union_sql():
         con.execute(statement)

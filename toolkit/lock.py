@@ -89,7 +89,8 @@ def describe(holder: dict | None) -> str:
 def command_line() -> str:
     """This process's command, as the user typed it (``liftlag build -c ...``) where it is liftlag."""
     name = Path(sys.argv[0]).name if sys.argv and sys.argv[0] else "python"
-    return " ".join(["liftlag" if name.startswith("liftlag") else name, *sys.argv[1:]])
+    liftlag = name.startswith("liftlag") or name in ("cli.py", "__main__.py")
+    return " ".join(["liftlag" if liftlag else name, *sys.argv[1:]])
 
 
 @contextlib.contextmanager

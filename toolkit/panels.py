@@ -130,19 +130,26 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
             result.reasons, result.taken_over = reasons, taken_over
             return result
         except BaseException as exc:
-            interrupted = isinstance(exc, (KeyboardInterrupt, duckdb.InterruptException))
+            interrupted = _is_interrupt(exc)
             reason = "interrupted (Ctrl-C)" if interrupted else (str(exc) or type(exc).__name__)
             try:
                 workspace.record_failure(
                     settings, status="interrupted" if interrupted else "failed", reason=reason,
                     exit_code=1 if interrupted else getattr(exc, "exit_code", 1), step=step["now"],
-                    fingerprint=fp, command=command,
+                    fingerprint=fp, command=command, error=type(exc).__name__,
                 )
             except OSError:
                 pass  # a read-only workspace: the error itself says what is wrong
-            if isinstance(exc, duckdb.InterruptException):
-                raise KeyboardInterrupt from exc
+            if interrupted and not isinstance(exc, KeyboardInterrupt):
+                raise KeyboardInterrupt from exc  # DuckDB's own error for Ctrl-C inside a query
             raise
+
+
+def _is_interrupt(exc: BaseException) -> bool:
+    """Ctrl-C: Python's KeyboardInterrupt, or DuckDB's error when it arrives inside a query."""
+    if isinstance(exc, (KeyboardInterrupt, duckdb.InterruptException)):
+        return True
+    return isinstance(exc, (duckdb.Error, RuntimeError)) and "interrupted" in str(exc).lower()
 
 
 def _build(settings: Settings, record: dict, fp: str, say, on_check, command: str) -> BuildResult:
@@ -162,7 +169,8 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     con = engine_connect(settings)
     try:
         result.check = checks.validate(con, settings, progress=lambda text: say("check", text),
-                                       checked_path=checked_private)
+                                       checked_path=checked_private,
+                                       fingerprint=freshness.check_fingerprint(record))
         checked_done = True
         if on_check is not None:
             on_check(result.check)

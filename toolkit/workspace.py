@@ -148,12 +148,13 @@ def remove_leftovers(settings: Settings) -> list[str]:
 
 
 def record_failure(settings: Settings, *, status: str, reason: str, exit_code: int, step: str | None,
-                   fingerprint: str | None, command: str) -> dict:
+                   fingerprint: str | None, command: str, error: str | None = None) -> dict:
     """Mark the workspace as failed in state.json: when, why, at which step, of which inputs."""
     failure = {
         "status": status,  # failed | interrupted
         "at": now(),
         "reason": reason,
+        "error": error,
         "exit_code": exit_code,
         "step": step,
         "fingerprint": fingerprint,
