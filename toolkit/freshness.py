@@ -33,7 +33,7 @@ from pathlib import Path
 from . import __version__
 
 SMALL_FILE_BYTES = 16 * 2**20
-FULL_HASH_BUDGET_BYTES = 256 * 2**20
+FULL_HASH_BUDGET_BYTES = 64 * 2**20  # per table
 SAMPLE_BYTES = 2**20
 _CHUNK = 2**20
 
