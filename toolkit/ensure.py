@@ -139,9 +139,14 @@ def ensure_built(settings, console=None, *, use_last_good: bool | None = None, e
     _say(err_console, f"building the panels first ({freshness.summary(reasons)})")
     try:
         run_build(settings)
-    except WorkspaceBusy as exc:
-        failure = {"at": workspace.now(), "reason": "another process holds the workspace"}
-        return _after_failure(settings, exc, failure, published, use_last_good, err_console)
+    except WorkspaceBusy:
+        if published is None or not use_last_good:
+            raise
+        note = (f"another process is still building the workspace; results below are from the build of "
+                f"{published.get('finished_at')}, made from earlier inputs or settings")
+        _warn(err_console, note)
+        workspace.accept_stale(settings, published["fingerprint"])
+        return Ready(settings, published, note=note)
     except LiftlagError as exc:
         return _after_failure(settings, exc, _failure_from_state(settings), published, use_last_good, err_console)
     build = workspace.published_build(settings)

@@ -149,8 +149,13 @@ def current(settings) -> dict:
     from . import checks, panels, sources
 
     inputs = {}
+    base = settings.base_dir.resolve()
     for name, table in sorted(settings.tables.items()):
         inputs[name] = fingerprint_files(sources.resolve_files(settings, table))
+        for f in inputs[name]:  # relative to the config's folder: a moved export is the same export
+            path = Path(f["path"]).resolve()
+            if path.is_relative_to(base):
+                f["path"] = path.relative_to(base).as_posix()
     other = {k: v for k, v in settings.raw.items() if k != "tables" and k not in NOT_BUILD_SECTIONS}
     values = panels.parameters(settings)
     labels = panels.parameter_settings()

@@ -69,7 +69,7 @@ def test_same_size_same_mtime_edit_is_noticed(tmp_path):
     os.utime(promotions, ns=(stat.st_atime_ns, stat.st_mtime_ns))
     assert promotions.stat().st_size == stat.st_size and promotions.stat().st_mtime_ns == stat.st_mtime_ns
     reasons = workspace.staleness(config.load(cfg), workspace.published_build(config.load(cfg)))
-    assert reasons == ["promotions: e/promotions.csv changed (same size, other content)"]
+    assert reasons == ["promotions: promotions.csv changed (same size, other content)"]
     assert not panels.build(config.load(cfg)).skipped
 
 
@@ -169,3 +169,11 @@ def test_checked_inputs_travel_inside_the_published_panels(tmp_path):
         assert workspace.read_meta(con)["fingerprint"] == published_fingerprint(settings)
     finally:
         con.close()
+
+
+def test_a_moved_export_with_its_workspace_is_still_current(tmp_path):
+    cfg = write_export(tmp_path / "e")
+    panels.build(config.load(cfg))
+    moved = tmp_path / "elsewhere"
+    (tmp_path / "e").rename(moved)
+    assert panels.build(config.load(moved / "liftlag.toml")).skipped
