@@ -14,8 +14,8 @@ content) and the settings now (``toolkit.freshness``):
   "the last build failed at ...; results below are from the build of ..." and the analysis runs
   on the last good panels.
 
-Inputs that already failed to build (a failure recorded with the same fingerprint) are not built
-again on every analysis: run ``liftlag build`` to retry them.
+Inputs that were found unusable (a failure with exit code 2 or 3 recorded with the same
+fingerprint) are not built again by every analysis: run ``liftlag build`` to retry them.
 """
 
 from __future__ import annotations
@@ -124,8 +124,10 @@ def ensure_built(settings, console=None, *, use_last_good: bool | None = None, e
         reasons = freshness.differences(published.get("record") if published else None, record)
 
     failure = _failure_from_state(settings)
-    if fp is not None and failure.get("status") == "failed" and failure.get("fingerprint") == fp:
-        # These very inputs and settings failed to build before; building again would fail alike.
+    if fp is not None and failure.get("status") == "failed" and failure.get("fingerprint") == fp \
+            and failure.get("exit_code") in (2, 3):
+        # These very inputs and settings were found unusable before (bad data or config, not a
+        # full disk or Ctrl-C); building again would fail alike.
         kind = {2: ConfigError, 3: DataError}.get(failure.get("exit_code"), AnalysisError)
         error = kind(f"the last build of these inputs failed at {failure.get('at')}: {failure.get('reason')}\n"
                      f"fix it and run `liftlag build -c {settings.config_path}`")
@@ -149,15 +151,23 @@ def ensure_built(settings, console=None, *, use_last_good: bool | None = None, e
         return Ready(settings, published, note=note)
     except LiftlagError as exc:
         return _after_failure(settings, exc, _failure_from_state(settings), published, use_last_good, err_console)
+    except Exception:  # an error of the system (a full disk, ...): the command line's handler words it
+        if published is not None and use_last_good:
+            return _after_failure(settings, None, _failure_from_state(settings), published, True, err_console)
+        if published is not None:
+            _warn(err_console, f"the build failed; the panels of the build of {published.get('finished_at')} are kept "
+                               "(read them anyway with --use-last-good)")
+        raise
     build = workspace.published_build(settings)
     return Ready(settings, build, built_now=True)
 
 
-def _after_failure(settings, exc: LiftlagError, failure: dict, published: dict | None, use_last_good: bool,
+def _after_failure(settings, exc: LiftlagError | None, failure: dict, published: dict | None, use_last_good: bool,
                    err_console) -> Ready:
     if published is None or not use_last_good:
         raise _refuse(exc, failure, published, settings) from None
-    note = (f"the last build failed at {failure.get('at')} ({failure.get('reason', str(exc)).splitlines()[0]}); "
+    reason = failure.get("reason") or str(exc)
+    note = (f"the last build failed at {failure.get('at')} ({reason.splitlines()[0]}); "
             f"results below are from the build of {published.get('finished_at')}, made from earlier inputs or settings")
     _warn(err_console, note)
     workspace.accept_stale(settings, published["fingerprint"])

@@ -63,8 +63,8 @@ class BuildResult:
     taken_over: dict | None = None  # the holder of a stale lock this build took over
 
 
-def build_fingerprint(settings: Settings, check_fingerprint: str | None = None) -> str:
-    """The fingerprint a build of ``settings`` would have now (``check_fingerprint`` is ignored)."""
+def build_fingerprint(settings: Settings) -> str:
+    """The fingerprint a build of ``settings`` would have now (see ``toolkit.freshness``)."""
     return freshness.build_fingerprint(freshness.current(settings))
 
 
