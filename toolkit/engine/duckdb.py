@@ -47,7 +47,11 @@ def connect(settings: Settings | None = None, database: str | Path = ":memory:",
     con.execute("SET memory_limit = ?", [memory])
     if temp is not None:
         temp = Path(temp) / f"{socket.gethostname()}-{os.getpid()}"
-        temp.mkdir(parents=True, exist_ok=True)
+        try:
+            temp.mkdir(parents=True, exist_ok=True)
+        except OSError:
+            temp = None  # a read-only workspace can still be read; work that would spill then fails
+    if temp is not None:
         con.execute("SET temp_directory = ?", [str(temp)])
     # Row order is never relied on (every table is keyed), so DuckDB may stream and spill freely.
     con.execute("SET preserve_insertion_order = false")
