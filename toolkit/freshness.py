@@ -138,6 +138,16 @@ def panel_reads(name: str) -> dict:
     return {"parameters": parameters, "panels": upstream}
 
 
+def _path_root(path: Path) -> Path:
+    """The folder a configured path starts from: before its first glob character, the folder
+    itself, or a file's folder."""
+    parts = path.parts
+    for i, part in enumerate(parts):
+        if any(c in part for c in "*?["):
+            return Path(*parts[:i]).resolve()
+    return path.resolve() if path.is_dir() else path.resolve().parent
+
+
 def current(settings) -> dict:
     """The record of what a build of ``settings`` would be made from now.
 
@@ -149,13 +159,18 @@ def current(settings) -> dict:
     from . import checks, panels, sources
 
     inputs = {}
-    base = settings.base_dir.resolve()
     for name, table in sorted(settings.tables.items()):
         inputs[name] = fingerprint_files(sources.resolve_files(settings, table))
-        for f in inputs[name]:  # relative to the config's folder: a moved export is the same export
+        # Files are named relative to the folder the table's path starts from, so that the same
+        # files reached through another path (a moved export, another config) are the same inputs.
+        root = _path_root(settings.resolve(table.path))
+        for f in inputs[name]:
             path = Path(f["path"]).resolve()
-            if path.is_relative_to(base):
-                f["path"] = path.relative_to(base).as_posix()
+            if path.is_relative_to(root):
+                f["path"] = path.relative_to(root).as_posix()
+    # A table's path is fingerprinted through its files; its other settings as they are.
+    tables = {name: {k: v for k, v in body.items() if k != "path"} if isinstance(body, dict) else body
+              for name, body in settings.raw.get("tables", {}).items()}
     other = {k: v for k, v in settings.raw.items() if k != "tables" and k not in NOT_BUILD_SECTIONS}
     values = panels.parameters(settings)
     labels = panels.parameter_settings()
@@ -170,7 +185,7 @@ def current(settings) -> dict:
     return {
         "version": __version__,
         "inputs": inputs,
-        "tables": settings.raw.get("tables", {}),
+        "tables": tables,
         "check_settings": other,
         "check_code": text_digest(*(r.sql() for r in checks.RULES), _code_digest()),
         "panels": panel_records,

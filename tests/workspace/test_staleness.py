@@ -177,3 +177,18 @@ def test_a_moved_export_with_its_workspace_is_still_current(tmp_path):
     moved = tmp_path / "elsewhere"
     (tmp_path / "e").rename(moved)
     assert panels.build(config.load(moved / "liftlag.toml")).skipped
+
+
+def test_the_same_files_through_another_config_are_the_same_inputs(tmp_path):
+    """A config elsewhere naming the same files by absolute paths (and the same workspace) finds
+    the panels current: files are identified relative to the folder their path starts from."""
+    cfg = write_export(tmp_path / "e")
+    panels.build(config.load(cfg))
+    text = cfg.read_text()
+    for name in ("transactions", "promotions", "assignments", "customers", "products"):
+        text = text.replace(f'path = "{name}.csv"', f'path = "{(cfg.parent / (name + ".csv")).as_posix()}"')
+    text = text.replace('path = ".liftlag"', f'path = "{(cfg.parent / ".liftlag").as_posix()}"')
+    other = tmp_path / "other" / "liftlag.toml"
+    other.parent.mkdir()
+    other.write_text(text)
+    assert workspace.staleness(config.load(other), workspace.published_build(config.load(cfg))) == []
