@@ -29,12 +29,17 @@ def register(sub, config_arg) -> None:
 
 
 def run_command(args) -> int:
+    from rich.markup import escape
+
     from .. import config
     from ..console import console, err_console
     from ..ensure import ensure_built
     from .api import analyse_timing, options_from, write_timing
 
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
+    check_out_dir(args.out)
     ready = ensure_built(settings, console, use_last_good=getattr(args, "use_last_good", None), err_console=err_console)
     con = ready.connect()
     try:
@@ -47,8 +52,8 @@ def run_command(args) -> int:
     write_timing(readout, out)
     _print_summary(console, readout)
     for note in readout.notes:
-        err_console.print(f"[yellow]note:[/] {note}")
-    console.print(f"timing tables in [bold]{out}[/] ({', '.join(sorted(readout.tables))})")
+        err_console.print(f"[yellow]note:[/] {escape(str(note))}")
+    console.print(f"timing tables in [bold]{escape(str(out))}[/] ({', '.join(sorted(readout.tables))})")
     return 0
 
 
