@@ -95,6 +95,7 @@ class TimingSettings:
 CHOICES = {
     "timing.dip_after": ("targeted", "any"),
     "timing.expected_starts": ("cadence", "observed"),
+    "workspace.on_failed_build": ("refuse", "use_last_good"),
 }
 
 
@@ -126,6 +127,9 @@ class ReportSettings:
 @dataclass(frozen=True)
 class WorkspaceSettings:
     path: Path = Path(".liftlag")
+    lock_wait_seconds: int = 600  # how long a build waits for another one before exit 2 (0: not at all)
+    auto_build: bool = True  # analyses build the panels first when they are missing or stale
+    on_failed_build: str = "refuse"  # or "use_last_good": read the last good panels, saying so
 
 
 @dataclass(frozen=True)
@@ -334,7 +338,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = float(a)
         elif isinstance(default, int) or key == "threads":
             v = _expect(path, full, value, int, "a whole number")
-            if v < 0 or (v == 0 and key not in ("seed", "future_days")):
+            if v < 0 or (v == 0 and key not in ("seed", "future_days", "lock_wait_seconds")):
                 raise ConfigError(f"{path}: key '{full}' must be a positive whole number, found {value!r}")
             kwargs[key] = v
         else:

@@ -466,7 +466,7 @@ def test_read_only_workspace_is_a_message_naming_the_setting(tmp_path, capsys, m
     def refuse(*args, **kwargs):
         raise PermissionError(13, "Permission denied", str(target))
 
-    monkeypatch.setattr(workspace, "atomic_database", refuse)
+    monkeypatch.setattr(workspace, "private_path", refuse)
     code, out = run_cli(check(cfg), capsys)
     assert_no_traceback(out)
     assert code == 2

@@ -71,8 +71,10 @@ _COLUMNS = {
 
 def _has_table(con, schema: str | None, name: str) -> bool:
     if schema:
-        q = "SELECT count(*) FROM information_schema.tables WHERE table_catalog = ? AND table_name = ?"
-        return con.execute(q, [schema, name]).fetchall()[0][0] > 0
+        # ``checked`` is a schema of the panels database (toolkit.workspace.connect) or an attached one.
+        q = ("SELECT count(*) FROM information_schema.tables WHERE (table_catalog = ? OR table_schema = ?) "
+             "AND table_name = ?")
+        return con.execute(q, [schema, schema, name]).fetchall()[0][0] > 0
     q = "SELECT count(*) FROM information_schema.tables WHERE table_name = ? AND table_catalog = current_database()"
     return con.execute(q, [name]).fetchall()[0][0] > 0
 
