@@ -5,7 +5,7 @@ scikit-learn and statsmodels):
 
 - :func:`analyse_longrun` (returns a :class:`LongrunReadout` whose ``tables`` are the results),
   :func:`write_longrun` (one Parquet file per table, with the manifest) (``api``)
-- estimators: :class:`DependenceIndex` (discount dependence per customer and quarter),
+- estimators: :class:`DependenceByQuarter` (deal shares per quarter, customer-block bootstrap),
   :class:`FixedEffectsRegression` (linear panel regression with absorbed customer and week
   effects, customer-clustered errors), :class:`QuarterClassifier` (population drift: can a
   classifier tell two quarters' customers apart?)
@@ -15,7 +15,7 @@ import importlib
 
 _HOME = {
     "LongrunReadout": "api", "analyse_longrun": "api", "write_longrun": "api", "SECTIONS": "api",
-    "DependenceIndex": "dependence", "FixedEffectsRegression": "fixed_effects", "QuarterClassifier": "drift",
+    "DependenceByQuarter": "dependence", "FixedEffectsRegression": "fixed_effects", "QuarterClassifier": "drift",
 }
 
 
