@@ -102,6 +102,7 @@ class LongrunSettings:
     drift_sample_customers: int = 5000
     drift_folds: int = 5
     drift_permutation_repeats: int = 5
+    drift_adjacent: bool = True
 
 
 # Settings that take one of a few words.

@@ -170,7 +170,7 @@ class QuarterClassifier:
         return self.to_html()
 
 
-def _pairs(quarters: list[str]) -> list[tuple[str, str, str]]:
+def _pairs(quarters: list[str], adjacent: bool = True) -> list[tuple[str, str, str]]:
     """(comparison, earlier, later): year over year where the data reaches back, then adjacent."""
     present = set(quarters)
     pairs = []
@@ -179,8 +179,9 @@ def _pairs(quarters: list[str]) -> list[tuple[str, str, str]]:
         earlier = f"{year - 1}Q{number}"
         if earlier in present:
             pairs.append(("year_over_year", earlier, q))
-    for a, b in zip(quarters, quarters[1:]):
-        pairs.append(("adjacent", a, b))
+    if adjacent:
+        for a, b in zip(quarters, quarters[1:]):
+            pairs.append(("adjacent", a, b))
     return pairs
 
 
@@ -224,10 +225,11 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
     finally:
         cur.close()
     quarters = [f"{q.year}Q{(q.month - 1) // 3 + 1}" for q in whole]
-    pairs = _pairs(quarters)
+    pairs = _pairs(quarters, adjacent=longrun.drift_adjacent)
     if not any(c == "year_over_year" for c, _, _ in pairs):
-        notes.append("no year-over-year comparison: the data does not reach back a year before any whole quarter; "
-                     "only adjacent quarters are compared, and they differ by season too")
+        notes.append("no year-over-year comparison: the data does not reach back a year before any whole quarter"
+                     + ("; only adjacent quarters are compared, and they differ by season too" if longrun.drift_adjacent
+                        else " and [longrun] drift_adjacent is false: nothing compared"))
     rows, importance_rows = [], []
     level = 1 - longrun.alpha
     sampled = any(population.get(q, 0) > longrun.drift_sample_customers for q in quarters)
