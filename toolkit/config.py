@@ -101,7 +101,7 @@ class LongrunSettings:
     coupons_cap: int = 20
     drift_sample_customers: int = 5000
     drift_folds: int = 5
-    drift_permutation_repeats: int = 5
+    drift_permutation_repeats: int = 3
     drift_adjacent: bool = True
 
 
