@@ -15,7 +15,7 @@ from typing import Any
 
 from ..errors import ConfigError
 
-EFFECTS = ("all", "uplift_only", "none", "stationary")
+EFFECTS = ("all", "uplift_only", "none", "stationary", "learning")
 """The scenario variants.
 
 ``all``: every mechanism on. ``uplift_only``: the coupon and the broadcast sale still raise the
@@ -25,8 +25,13 @@ one's behaviour (an A/A data set on which every effect must come out null). ``st
 and the sale work as in ``all``, but nothing changes from one year to the next: no learning, no
 new customers, one campaign a quarter on the same dates each year, a coupon response that does
 not depend on the customer's purchase history, no anticipation (a data set on which the long-run
-drift analyses must find nothing).
+drift analyses must find nothing). ``learning``: ``all``, and customers learn from the coupons
+they receive: their full-price hazard falls and their response to the next coupon rises, so
+discount dependence rises over the quarters (``LEARNING`` gives the rates).
 """
+
+#: The learning rates of the ``learning`` variant (per coupon received).
+LEARNING = {"learning_full_price_per_coupon": 0.03, "learning_coupon_per_coupon": 0.15}
 
 
 @dataclass(frozen=True)
@@ -105,12 +110,12 @@ class Scenario:
         campaign start, for customers who have received at least ``anticipation_min_coupons``
         coupons (treatment assignments of campaigns already started).
     anticipation_days, anticipation_min_coupons : int
-    learning_full_price_per_coupon : float, default=0.03
+    learning_full_price_per_coupon : float, default=0.0
         Customers learn to wait for deals: every day's purchase hazard is multiplied by
         ``exp(-learning_full_price_per_coupon x min(coupons learned, learning_cap))`` (coupons
         learned: treatment assignments received before the latest campaign start, so a coupon
         teaches from the next campaign on). 0 switches it off.
-    learning_coupon_per_coupon : float, default=0.15
+    learning_coupon_per_coupon : float, default=0.0
         ... and respond more to a coupon: a campaign's coupon hazard ratio, where above 1, is
         multiplied by ``exp(learning_coupon_per_coupon x min(coupons received before it,
         learning_cap))`` (sure things and do-not-disturb customers keep theirs).
@@ -170,8 +175,8 @@ class Scenario:
     anticipation_hr: float = 0.6
     anticipation_days: int = 7
     anticipation_min_coupons: int = 2
-    learning_full_price_per_coupon: float = 0.03
-    learning_coupon_per_coupon: float = 0.15
+    learning_full_price_per_coupon: float = 0.0
+    learning_coupon_per_coupon: float = 0.0
     learning_cap: int = 10
     pre_period_days: int = 365
     after_days: int = 28
@@ -183,10 +188,10 @@ class Scenario:
 
         Parameters
         ----------
-        effects : {"all", "uplift_only", "none", "stationary"}, default="all"
+        effects : {"all", "uplift_only", "none", "stationary", "learning"}, default="all"
             ``uplift_only`` sets the dip and anticipation hazard ratios to 1 and their day counts
-            to 0 (and switches learning off); ``none`` also sets every coupon and broadcast hazard
-            ratio to 1; ``stationary`` is described in :data:`EFFECTS`.
+            to 0; ``none`` also sets every coupon and broadcast hazard
+            ratio to 1; ``stationary`` and ``learning`` are described in :data:`EFFECTS`.
         **overrides
             Any field of :class:`Scenario`.
 
@@ -203,8 +208,8 @@ class Scenario:
         values: dict[str, Any] = {}
         if effects in ("uplift_only", "none"):
             values.update(post_promotion_dip_hr=1.0, dip_days=0, anticipation_hr=1.0, anticipation_days=0)
-        if effects in ("uplift_only", "none", "stationary"):
-            values.update(learning_full_price_per_coupon=0.0, learning_coupon_per_coupon=0.0)
+        if effects == "learning":
+            values.update(LEARNING)
         if effects == "stationary":
             values.update(
                 existing_share=1.0,                # no new customers: the base does not grow or age
