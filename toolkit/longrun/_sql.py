@@ -9,9 +9,10 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from .. import sqlfiles
 from ..errors import AnalysisError
 
-SQL_DIR = Path(__file__).resolve().parents[2] / "sql" / "longrun"  # beside sql/checks and sql/panels
+SQL_DIR = sqlfiles.folder("longrun")  # beside sql/checks and sql/panels (toolkit/sql in an installed package)
 
 
 def sql_text(name: str) -> str:
