@@ -91,6 +91,24 @@ class TimingSettings:
     min_arm_customers: int = 30
 
 
+@dataclass(frozen=True)
+class LongrunSettings:
+    """``[longrun]``: the long-run analyses (``liftlag longrun``). Each setting is documented in README."""
+
+    seed: int = 20261201
+    alpha: float = 0.05
+    bootstrap_rounds: int = 200
+    n_blocks: int = 64
+    reference_depth: float = 0.2
+    dependent_threshold: float = 0.5
+    responsiveness_sample_customers: int = 20000
+    coupons_cap: int = 20
+    drift_sample_customers: int = 5000
+    drift_folds: int = 5
+    drift_permutation_repeats: int = 3
+    drift_adjacent: bool = True
+
+
 # Settings that take one of a few words.
 CHOICES = {
     "timing.dip_after": ("targeted", "any"),
@@ -149,6 +167,7 @@ class Settings:
     windows: WindowSettings = WindowSettings()
     campaign: CampaignSettings = CampaignSettings()
     timing: TimingSettings = TimingSettings()
+    longrun: LongrunSettings = LongrunSettings()
     report: ReportSettings = ReportSettings()
     checks: CheckSettings = CheckSettings()
     gates: GateSettings = GateSettings()
@@ -174,6 +193,7 @@ _SECTIONS = {
     "windows": WindowSettings,
     "campaign": CampaignSettings,
     "timing": TimingSettings,
+    "longrun": LongrunSettings,
     "report": ReportSettings,
     "checks": CheckSettings,
     "gates": GateSettings,
@@ -323,6 +343,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
                      "baseline_threshold", "target_lift", "min_regular_share",
+                     "reference_depth", "dependent_threshold",
                      "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
                      "max_outlying_date_share"):
             kwargs[key] = _share(path, full, value)
