@@ -102,6 +102,13 @@ class LongrunSettings:
     drift_sample_customers: int = 20000
     drift_folds: int = 5
     drift_permutation_repeats: int = 5
+    min_cohort_customers: int = 50
+    cohort_burn_in_days: int = 90
+    lapse_days: int = 180
+    retention_step_days: int = 30
+    broadcast_pre_days: int = 365
+    broadcast_min_pre_days: int = 28
+    broadcast_mask_after_days: int = 14
 
 
 # Settings that take one of a few words.

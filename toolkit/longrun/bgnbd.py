@@ -65,8 +65,13 @@ class BetaGeometricNBD(FittedMixin):
         Significance level of the intervals in ``summary`` (``conf_int`` takes its own).
     initial : tuple of 4 floats, default=(1.0, 1.0, 1.0, 1.0)
         Starting values of ``r, alpha, a, b``.
-    penalty : float, default=0.0
-        Optional L2 penalty on the log-parameters (0 = plain maximum likelihood).
+    prior_scale : float, optional
+        Standard deviation of an independent normal prior, centred on 0, on each log-parameter
+        (a posterior mode instead of plain maximum likelihood). When a cohort shows almost no
+        dropout the dropout parameters ``a``, ``b`` drift to the edge of the parameter space and
+        their information vanishes; a wide prior (3 means a factor of e^3 is one standard
+        deviation) keeps them finite and their draws usable. ``None`` (default): plain maximum
+        likelihood, as published.
 
     Attributes
     ----------
@@ -88,10 +93,10 @@ class BetaGeometricNBD(FittedMixin):
     """
 
     def __init__(self, *, alpha: float = 0.05, initial: tuple[float, float, float, float] = (1.0, 1.0, 1.0, 1.0),
-                 penalty: float = 0.0):
+                 prior_scale: float | None = None):
         self.alpha = alpha
         self.initial = initial
-        self.penalty = penalty
+        self.prior_scale = prior_scale
 
     def fit(self, *, frequency, recency, age, weights=None, time_unit: str = "weeks") -> "BetaGeometricNBD":
         """Fit on per-customer summaries.
@@ -134,9 +139,13 @@ class BetaGeometricNBD(FittedMixin):
         xs, txs, Ts, ws = (keys[c].to_numpy(dtype=float) for c in ("x", "t_x", "T", "w"))
         scale = float(ws.sum())
 
+        precision = 0.0 if self.prior_scale is None else 1.0 / float(self.prior_scale) ** 2
+
+        def negative_log_posterior(theta):
+            return -(ws * _log_likelihood_terms(theta, xs, txs, Ts)).sum() + 0.5 * precision * float(theta @ theta)
+
         def objective(theta):
-            value = -(ws * _log_likelihood_terms(theta, xs, txs, Ts)).sum() / scale
-            return value + self.penalty * float(theta @ theta)
+            return negative_log_posterior(theta) / scale
 
         start = np.log(np.asarray(self.initial, dtype=float))
         result = optimize.minimize(objective, start, method="L-BFGS-B",
@@ -154,7 +163,7 @@ class BetaGeometricNBD(FittedMixin):
         self.log_params_ = theta
         self.params_ = pd.Series(np.exp(theta), index=list(PARAMETERS), name="estimate")
         self.log_likelihood_ = float((ws * _log_likelihood_terms(theta, xs, txs, Ts)).sum())
-        hessian = _numerical_hessian(lambda th: -(ws * _log_likelihood_terms(th, xs, txs, Ts)).sum(), theta)
+        hessian = _numerical_hessian(negative_log_posterior, theta)
         try:
             self.covariance_ = np.linalg.inv(hessian)
         except np.linalg.LinAlgError:
@@ -213,8 +222,10 @@ class BetaGeometricNBD(FittedMixin):
         if not np.all(np.isfinite(self.covariance_)):
             return np.repeat(self.params_.to_numpy()[None, :], rounds, axis=0)
         cov = (self.covariance_ + self.covariance_.T) / 2
+        values, vectors = np.linalg.eigh(cov)
+        cov = (vectors * np.clip(values, 0, None)) @ vectors.T  # numerical noise below 0 -> 0
         draws = rng.multivariate_normal(self.log_params_, cov, size=rounds, method="eigh")
-        return np.exp(draws)
+        return np.exp(np.clip(draws, -12.0, 12.0))  # the optimiser's bounds
 
     def _params(self, params):
         if params is not None:

@@ -1,16 +1,17 @@
--- Table: cohort_customers — one row per customer acquired inside the data up to the through day:
+-- Table: longrun_cohort_customers — one row per customer acquired inside the data up to the through day:
 -- the first purchase (day, quarter, whether it was a deal), the repeat-purchase summary the BG/NBD
 -- model needs (purchase days after the first, the last purchase day) and the later orders at full price.
 -- Reads: orders (panel), checked.customers (first_seen_at, may be empty)
--- Parameters: getvariable('cohort_through_end') DATE — last day of the observation period;
---             getvariable('cohort_burn_in_days') INTEGER — without first_seen_at, a first order in
+-- Parameters: longrun_through_end (DATE) — last day of the observation period;
+--             longrun_burn_in_days (INTEGER) — without first_seen_at, a first order in
 --             this many days after the data's first order may be a returning customer's, so it is
 --             not counted as an acquisition.
+CREATE OR REPLACE TEMP TABLE longrun_cohort_customers AS
 WITH purchases AS (
     -- Return-only orders (net below zero) are not purchases.
     SELECT customer_id, order_id, ordered_on, is_deal
     FROM orders
-    WHERE NOT is_return AND ordered_on <= getvariable('cohort_through_end')
+    WHERE NOT is_return AND ordered_on <= getvariable('longrun_through_end')
 ),
 
 data_start AS (
@@ -52,8 +53,8 @@ SELECT
     CAST(b.repeat_days AS BIGINT) AS repeat_days,
     b.last_ordered_on,
     CAST(date_diff('day', b.first_ordered_on, b.last_ordered_on) AS INTEGER) AS days_first_to_last,
-    CAST(date_diff('day', b.first_ordered_on, getvariable('cohort_through_end')) AS INTEGER) AS days_observed,
-    CAST(date_diff('day', b.last_ordered_on, getvariable('cohort_through_end')) AS INTEGER) AS days_since_last,
+    CAST(date_diff('day', b.first_ordered_on, getvariable('longrun_through_end')) AS INTEGER) AS days_observed,
+    CAST(date_diff('day', b.last_ordered_on, getvariable('longrun_through_end')) AS INTEGER) AS days_since_last,
     CAST(b.later_orders AS BIGINT) AS later_orders,
     CAST(b.later_full_price_orders AS BIGINT) AS later_full_price_orders,
     s.first_seen_on
@@ -64,5 +65,5 @@ LEFT JOIN seen AS s USING (customer_id)
 -- says when; otherwise a first order after the burn-in.
 WHERE CASE
     WHEN s.first_seen_on IS NOT NULL THEN s.first_seen_on >= d.first_on
-    ELSE b.first_ordered_on >= d.first_on + getvariable('cohort_burn_in_days')
+    ELSE b.first_ordered_on >= d.first_on + getvariable('longrun_burn_in_days')
 END
