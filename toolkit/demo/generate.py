@@ -50,7 +50,7 @@ def generate(
         Seed of numpy's Generator; the same seed and settings give byte-identical files.
     customers : int, default=4000
         Number of customers.
-    effects : {"all", "uplift_only", "none"}, default="all"
+    effects : {"all", "uplift_only", "none", "stationary"}, default="all"
         Which mechanisms are on (see :data:`toolkit.demo.scenario.EFFECTS`).
     scenario : Scenario, optional
         Full parameters; overrides ``effects`` when given.
@@ -219,6 +219,18 @@ def _mechanisms(scenario: Scenario) -> dict:
             "anticipation_hr": scenario.anticipation_hr,
             "anticipation_days": scenario.anticipation_days,
             "anticipation_min_coupons": scenario.anticipation_min_coupons,
+        },
+        "learning": {
+            "active": scenario.has_learning,
+            "acts_on": (
+                "every day's purchase hazard, times exp(-learning_full_price_per_coupon x min(coupons received, "
+                "learning_cap)); and each campaign's coupon hazard ratio, times exp(learning_coupon_per_coupon x "
+                "min(coupons received before it, learning_cap)): customers who have received more coupons buy "
+                "less at full price and respond more to the next coupon, so discount dependence rises"
+            ),
+            "learning_full_price_per_coupon": scenario.learning_full_price_per_coupon,
+            "learning_coupon_per_coupon": scenario.learning_coupon_per_coupon,
+            "learning_cap": scenario.learning_cap,
         },
         "broadcast": {
             "active": scenario.broadcast_hr != 1.0,
