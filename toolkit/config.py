@@ -110,6 +110,7 @@ class LongrunSettings:
     broadcast_min_pre_days: int = 28
     broadcast_mask_after_days: int = 14
     broadcast_mask_before_days: int = 7
+    broadcast_parameter_draws: int = 100
 
 
 # Settings that take one of a few words.
