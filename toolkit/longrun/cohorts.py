@@ -18,7 +18,8 @@ quarter of that first order. For each cohort:
 * **BG/NBD** (:class:`~toolkit.longrun.bgnbd.BetaGeometricNBD`, Fader, Hardie & Lee 2005) fitted
   per cohort on the purchase days in weeks: the expected orders in the next quarter (13 weeks) and
   the probability of still being active, averaged over the cohort's customers; intervals from
-  draws of the parameters from their asymptotic normal (log scale).
+  rounds that each draw the parameters from their asymptotic normal (log scale) and the
+  customers again (blocks), so that they cover both the fit and the cohort's make-up.
 * The contrast ``deal_minus_full_price`` of each measure, with an interval from the two cohorts'
   independent draws.
 
@@ -171,10 +172,13 @@ class CohortValue(FittedMixin):
         k = max(int(self.n_blocks), 2)
         later_b = np.bincount(blocks, weights=later, minlength=k)
         full_b = np.bincount(blocks, weights=full, minlength=k)
+        # One set of block resamples, shared by every measure of the cohort: each row is a
+        # bootstrap round, each column a block (how many times it was drawn).
+        picks = rng.integers(0, k, size=(int(self.rounds), k))
+        block_counts = np.stack([np.bincount(row, minlength=k) for row in picks])
         if later.sum() > 0:
-            picks = rng.integers(0, k, size=(int(self.rounds), k))
             with np.errstate(invalid="ignore", divide="ignore"):
-                draws = full_b[picks].sum(axis=1) / later_b[picks].sum(axis=1)
+                draws = (block_counts @ full_b) / (block_counts @ later_b)
             self.estimates_["later_full_price_share"] = float(full.sum() / later.sum())
             self.draws_["later_full_price_share"] = draws
         else:
@@ -198,13 +202,20 @@ class CohortValue(FittedMixin):
             self.estimates_["expected_orders_next_quarter"] = float(
                 model.expected_purchases(self.horizon_weeks, **summaries).mean())
             self.estimates_["probability_active"] = float(model.probability_active(**summaries).mean())
+            # Each round: parameters drawn from their estimate's distribution and customers drawn
+            # again (blocks), so the interval covers both the fit and which customers the
+            # cohort happened to get.
             params = model.sample_params(int(self.rounds), seed=int(rng.integers(2**31)))
+            weights = block_counts[:, blocks[keep]].astype(float)
+            expected, active = [], []
             with warnings.catch_warnings(), np.errstate(all="ignore"):
                 warnings.simplefilter("ignore", RuntimeWarning)
-                self.draws_["expected_orders_next_quarter"] = np.array(
-                    [model.expected_purchases(self.horizon_weeks, params=p, **summaries).mean() for p in params])
-                self.draws_["probability_active"] = np.array(
-                    [model.probability_active(params=p, **summaries).mean() for p in params])
+                for p, w in zip(params, weights):
+                    total = w.sum() or 1.0
+                    expected.append(float(w @ model.expected_purchases(self.horizon_weeks, params=p, **summaries)) / total)
+                    active.append(float(w @ model.probability_active(params=p, **summaries)) / total)
+            self.draws_["expected_orders_next_quarter"] = np.array(expected)
+            self.draws_["probability_active"] = np.array(active)
         return self
 
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
