@@ -37,6 +37,7 @@ import warnings
 import numpy as np
 import pandas as pd
 from lifelines import KaplanMeierFitter
+from scipy import sparse
 
 from ..errors import AnalysisError, ConvergenceError
 from ..timing._base import FittedMixin, check_alpha, percentile_interval, single_threaded_blas
@@ -198,22 +199,34 @@ class CohortValue(FittedMixin):
             self.notes_.append(f"BG/NBD not fitted: {exc}")
         else:
             self.model_ = model
-            summaries = {"frequency": frequency[keep], "recency": recency[keep], "age": age[keep]}
+            # Predictions are computed once per distinct summary (x, t_x, T), and summed per
+            # customer block through a sparse block x summary count matrix: the cost follows the
+            # number of distinct summaries, not of customers.
+            table = pd.DataFrame({"x": frequency[keep], "t": recency[keep], "T": age[keep], "block": blocks[keep]})
+            codes = table.groupby(["x", "t", "T"], sort=False).ngroup().to_numpy()
+            first = pd.Series(np.arange(len(codes))).groupby(codes).first().to_numpy()
+            summaries = {"frequency": table["x"].to_numpy()[first], "recency": table["t"].to_numpy()[first],
+                         "age": table["T"].to_numpy()[first]}
+            counts = np.bincount(codes, minlength=len(first)).astype(float)
+            incidence = sparse.csr_matrix((np.ones(len(codes)), (table["block"].to_numpy(), codes)),
+                                          shape=(k, len(first)))
+            block_sizes = np.asarray(incidence.sum(axis=1)).ravel()
+            n_kept = counts.sum()
             self.estimates_["expected_orders_next_quarter"] = float(
-                model.expected_purchases(self.horizon_weeks, **summaries).mean())
-            self.estimates_["probability_active"] = float(model.probability_active(**summaries).mean())
+                counts @ model.expected_purchases(self.horizon_weeks, **summaries) / n_kept)
+            self.estimates_["probability_active"] = float(counts @ model.probability_active(**summaries) / n_kept)
             # Each round: parameters drawn from their estimate's distribution and customers drawn
             # again (blocks), so the interval covers both the fit and which customers the
             # cohort happened to get.
             params = model.sample_params(int(self.rounds), seed=int(rng.integers(2**31)))
-            weights = block_counts[:, blocks[keep]].astype(float)
             expected, active = [], []
             with warnings.catch_warnings(), np.errstate(all="ignore"):
                 warnings.simplefilter("ignore", RuntimeWarning)
-                for p, w in zip(params, weights):
-                    total = w.sum() or 1.0
-                    expected.append(float(w @ model.expected_purchases(self.horizon_weeks, params=p, **summaries)) / total)
-                    active.append(float(w @ model.probability_active(params=p, **summaries)) / total)
+                for p, drawn in zip(params, block_counts):
+                    total = float(drawn @ block_sizes) or 1.0
+                    expected.append(float(drawn @ (incidence @ model.expected_purchases(
+                        self.horizon_weeks, params=p, **summaries))) / total)
+                    active.append(float(drawn @ (incidence @ model.probability_active(params=p, **summaries))) / total)
             self.draws_["expected_orders_next_quarter"] = np.array(expected)
             self.draws_["probability_active"] = np.array(active)
         return self
