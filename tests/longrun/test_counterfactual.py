@@ -16,7 +16,7 @@ from toolkit import config, panels, workspace
 from toolkit.config import LongrunSettings
 from toolkit.errors import AnalysisError
 from toolkit.longrun import counterfactual
-from toolkit.longrun.counterfactual import BroadcastCounterfactual, forecast_covariance
+from toolkit.longrun.counterfactual import BroadcastCounterfactual, forecast_covariance, forecast_mean
 
 
 def nile_series() -> pd.Series:
@@ -40,7 +40,7 @@ def test_local_level_matches_durbin_koopman_nile_variances():
 
 
 def test_forecast_covariance_matches_statsmodels_and_the_local_level_formula():
-    """Diagonal: statsmodels' own forecast variances. Off the diagonal, for a local level (common
+    """Means and the diagonal: statsmodels' own forecasts. Off the diagonal, for a local level (common
     practice, no source; follows from the model's definition): Cov(y_i, y_j) = P_1 + (min(i, j) - 1)
     x level variance, where P_1 is the first step's predicted level variance."""
     from statsmodels.tsa.statespace.structural import UnobservedComponents
@@ -48,9 +48,11 @@ def test_forecast_covariance_matches_statsmodels_and_the_local_level_formula():
     series = nile_series().iloc[:-1].to_numpy()
     results = UnobservedComponents(series, level="local level").fit(disp=False)
     steps = 6
-    cov = forecast_covariance(results, steps)
-    expected_diagonal = np.asarray(results.get_forecast(steps).var_pred_mean)
-    np.testing.assert_allclose(np.diag(cov), expected_diagonal, rtol=1e-8)
+    cov = forecast_covariance(results.filter_results, steps)
+    forecast = results.get_forecast(steps)
+    np.testing.assert_allclose(np.diag(cov), np.asarray(forecast.var_pred_mean), rtol=1e-8)
+    np.testing.assert_allclose(forecast_mean(results.filter_results, steps), np.asarray(forecast.predicted_mean),
+                               rtol=1e-10)
     p1 = float(results.predicted_state_cov[0, 0, -1])
     level = float(results.params[list(results.model.param_names).index("sigma2.level")])
     i, j = np.meshgrid(np.arange(1, steps + 1), np.arange(1, steps + 1))

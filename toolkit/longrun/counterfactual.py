@@ -71,32 +71,49 @@ ASSUMPTIONS = (
 )
 
 
-def forecast_covariance(results, steps: int) -> np.ndarray:
-    """Covariance matrix (steps x steps) of the next ``steps`` observations of a fitted state-space model.
+def _matrices(filtered):
+    """Time-invariant system matrices of a Kalman filter output (statsmodels ``FilterResults``)."""
+    return (np.asarray(filtered.transition[:, :, 0]), np.asarray(filtered.selection[:, :, 0]),
+            np.asarray(filtered.state_cov[:, :, 0]), np.asarray(filtered.design[:, :, 0]),
+            float(np.asarray(filtered.obs_cov[:, :, 0])[0, 0]))
 
-    With the predicted state covariance ``P`` of the first forecast step, transition ``T``,
-    selection ``R``, state noise ``Q``, design ``Z`` and observation noise ``H`` (all
-    time-invariant): ``V_1 = P``, ``V_(i+1) = T V_i T' + R Q R'``, and for ``j >= i``
-    ``Cov(y_j, y_i) = Z T^(j-i) V_i Z'`` (plus ``H`` on the diagonal). The diagonal equals
-    statsmodels' own forecast variances (a test checks it).
+
+def forecast_covariance(filtered, steps: int) -> np.ndarray:
+    """Covariance matrix (steps x steps) of the next ``steps`` observations of a filtered state-space model.
+
+    ``filtered`` is statsmodels' Kalman filter output (``results.filter_results``, or
+    ``model.filter(params, return_ssm=True)``). With the predicted state covariance ``P`` of the
+    first forecast step, transition ``T``, selection ``R``, state noise ``Q``, design ``Z`` and
+    observation noise ``H`` (all time-invariant): ``V_1 = P``, ``V_(i+1) = T V_i T' + R Q R'``,
+    and for ``j >= i`` ``Cov(y_j, y_i) = Z T^(j-i) V_i Z'`` (plus ``H`` on the diagonal). The
+    diagonal equals statsmodels' own forecast variances (a test checks it).
     """
-    fr = results.filter_results
-    T = np.asarray(fr.transition[:, :, 0])
-    R = np.asarray(fr.selection[:, :, 0])
-    Q = np.asarray(fr.state_cov[:, :, 0])
-    Z = np.asarray(fr.design[:, :, 0])
-    H = float(np.asarray(fr.obs_cov[:, :, 0])[0, 0])
-    V = np.asarray(results.predicted_state_cov[:, :, -1])
+    T, R, Q, Z, H = _matrices(filtered)
+    V = np.asarray(filtered.predicted_state_cov[:, :, -1])
     noise = R @ Q @ R.T
+    powers = np.empty((steps, T.shape[0]))  # row k: Z T^k
+    row = Z[0]
+    for k in range(steps):
+        powers[k] = row
+        row = row @ T
     cov = np.zeros((steps, steps))
     for i in range(steps):
-        propagated = V  # T^(j-i) V_i, starting at j = i
-        for j in range(i, steps):
-            value = float((Z @ propagated @ Z.T)[0, 0])
-            cov[j, i] = cov[i, j] = value
-            propagated = T @ propagated
+        column = powers[: steps - i] @ (V @ Z[0])  # Cov(y_j, y_i), j = i..steps-1
+        cov[i:, i] = column
+        cov[i, i:] = column
         V = T @ V @ T.T + noise
     return cov + H * np.eye(steps)
+
+
+def forecast_mean(filtered, steps: int, intercepts: np.ndarray | None = None) -> np.ndarray:
+    """Expected next ``steps`` observations: ``Z T^(j-1) a_1`` plus the regression part, if any."""
+    T, _, _, Z, _ = _matrices(filtered)
+    state = np.asarray(filtered.predicted_state[:, -1])
+    out = np.empty(steps)
+    for j in range(steps):
+        out[j] = float(Z[0] @ state)
+        state = T @ state
+    return out if intercepts is None else out + intercepts
 
 
 class BroadcastCounterfactual(FittedMixin):
@@ -214,9 +231,10 @@ class BroadcastCounterfactual(FittedMixin):
         self.results_ = results
         self.scale_ = scale
         steps = len(horizon)
-        forecast = results.get_forecast(steps, exog=future_controls)
-        mean = np.asarray(forecast.predicted_mean) * scale
-        cov = forecast_covariance(results, steps) * scale**2
+        beta = self._beta(results.model, np.asarray(results.params))
+        intercepts = None if future_controls is None else future_controls @ beta
+        mean = forecast_mean(results.filter_results, steps, intercepts) * scale
+        cov = forecast_covariance(results.filter_results, steps) * scale**2
         z = stats.norm.ppf(1 - alpha / 2)
         sd = np.sqrt(np.clip(np.diag(cov), 0, None))
         is_excluded = np.zeros(steps, bool) if excluded is None else excluded.reindex(horizon.index).fillna(False).to_numpy(bool)
@@ -251,6 +269,11 @@ class BroadcastCounterfactual(FittedMixin):
         self.regression_ = params[[n for n in names if n.startswith("beta")]] * scale
         return self
 
+    @staticmethod
+    def _beta(model, params: np.ndarray) -> np.ndarray:
+        names = list(model.param_names)
+        return np.array([params[i] for i, n in enumerate(names) if n.startswith("beta")])
+
     def _draw_sums(self, model, results, takes, steps, future_controls, scale) -> np.ndarray | None:
         """Draws (parameter_draws x windows) of the counterfactual window sums, or None (plug-in)."""
         if not self.parameter_draws:
@@ -272,8 +295,12 @@ class BroadcastCounterfactual(FittedMixin):
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
             for d, theta in enumerate(draws):
-                filtered = model.filter(theta)
-                mean = np.asarray(filtered.get_forecast(steps, exog=future_controls).predicted_mean) * scale
+                # The bare Kalman filter output: building statsmodels' results object per draw costs
+                # more than the filter itself.
+                filtered = model.filter(theta, return_ssm=True)
+                beta = self._beta(model, theta)
+                intercepts = None if future_controls is None else future_controls @ beta
+                mean = forecast_mean(filtered, steps, intercepts) * scale
                 cov = forecast_covariance(filtered, steps) * scale**2
                 window_cov = takes @ cov @ takes.T
                 sums[d] = rng.multivariate_normal(takes @ mean, (window_cov + window_cov.T) / 2, method="eigh")
