@@ -106,6 +106,7 @@ class LongrunSettings:
     cohort_burn_in_days: int = 90
     lapse_days: int = 180
     retention_step_days: int = 30
+    cohort_sample_customers: int = 50000
     broadcast_pre_days: int = 365
     broadcast_min_pre_days: int = 28
     broadcast_mask_after_days: int = 14

@@ -134,6 +134,8 @@ class CohortValue(FittedMixin):
     prior_scale : float, default=3.0
         Normal prior on the BG/NBD log-parameters (see :class:`BetaGeometricNBD`): keeps the
         dropout parameters finite in a cohort that shows almost no dropout.
+    sample_customers : int or None, default=50000
+        Larger cohorts are fitted (and forecast) on a seeded sample of this many customers.
 
     Attributes
     ----------
@@ -147,8 +149,10 @@ class CohortValue(FittedMixin):
     _fitted_attribute = "estimates_"
 
     def __init__(self, *, horizon_weeks: float = NEXT_QUARTER_WEEKS, rounds: int = 200, n_blocks: int = 64,
-                 seed: int = 20261201, alpha: float = 0.05, prior_scale: float = 3.0):
+                 seed: int = 20261201, alpha: float = 0.05, prior_scale: float = 3.0,
+                 sample_customers: int | None = 50000):
         self.prior_scale = prior_scale
+        self.sample_customers = sample_customers
         self.horizon_weeks = horizon_weeks
         self.rounds = rounds
         self.n_blocks = n_blocks
@@ -189,6 +193,14 @@ class CohortValue(FittedMixin):
         recency = customers["days_first_to_last"].to_numpy(dtype=float) / 7.0
         age = customers["days_observed"].to_numpy(dtype=float) / 7.0
         keep = age > 0  # a first order on the last day analysed says nothing about repeat buying
+        if self.sample_customers and keep.sum() > int(self.sample_customers):
+            # A seeded sample bounds the fit's cost on a large cohort (its intervals are the
+            # sample's, so they are honest about its size).
+            chosen = rng.choice(np.flatnonzero(keep), size=int(self.sample_customers), replace=False)
+            keep = np.zeros(n, bool)
+            keep[chosen] = True
+            self.notes_.append(f"BG/NBD fitted on a seeded sample of {int(self.sample_customers):,} of the "
+                               f"cohort's {n:,} customers")
         self.model_ = None
         try:
             with warnings.catch_warnings():
@@ -317,7 +329,8 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
         retention_rows.append(curve)
         with single_threaded_blas():
             value = CohortValue(rounds=longrun.bootstrap_rounds, n_blocks=longrun.n_blocks,
-                                seed=int(longrun.seed) + index, alpha=alpha).fit(rows)
+                                seed=int(longrun.seed) + index, alpha=alpha,
+                                sample_customers=int(longrun.cohort_sample_customers)).fit(rows)
         fitted[(cohort, first_quarter)] = value
         ci = value.conf_int(alpha).set_index("measure")
         for measure in MEASURES:
