@@ -99,7 +99,7 @@ class LongrunSettings:
     dependent_threshold: float = 0.5
     responsiveness_sample_customers: int = 20000
     coupons_cap: int = 20
-    drift_sample_customers: int = 20000
+    drift_sample_customers: int = 5000
     drift_folds: int = 5
     drift_permutation_repeats: int = 5
     min_cohort_customers: int = 50
