@@ -17,9 +17,10 @@ quarter of that first order. For each cohort:
   deal; interval from a customer-block bootstrap (all of a customer's orders move together).
 * **BG/NBD** (:class:`~toolkit.longrun.bgnbd.BetaGeometricNBD`, Fader, Hardie & Lee 2005) fitted
   per cohort on the purchase days in weeks: the expected orders in the next quarter (13 weeks) and
-  the probability of still being active, averaged over the cohort's customers; intervals from
-  rounds that each draw the parameters from their asymptotic normal (log scale) and the
-  customers again (blocks), so that they cover both the fit and the cohort's make-up.
+  the probability of still being active, averaged over the cohort's customers; intervals from a
+  one-step bootstrap: each round draws the customers again (blocks) and moves the parameters
+  by one Newton step towards that draw's fit, so that they cover both the fit and the cohort's
+  make-up.
 * The contrast ``deal_minus_full_price`` of each measure, with an interval from the two cohorts'
   independent draws.
 
@@ -227,10 +228,18 @@ class CohortValue(FittedMixin):
             self.estimates_["expected_orders_next_quarter"] = float(
                 counts @ model.expected_purchases(self.horizon_weeks, **summaries) / n_kept)
             self.estimates_["probability_active"] = float(counts @ model.probability_active(**summaries) / n_kept)
-            # Each round: parameters drawn from their estimate's distribution and customers drawn
-            # again (blocks), so the interval covers both the fit and which customers the
-            # cohort happened to get.
-            params = model.sample_params(int(self.rounds), seed=int(rng.integers(2**31)))
+            # Each round draws the customers again (blocks) and refits the model to them by one
+            # Newton step from the fit (the one-step bootstrap: theta_b = theta + H^-1 g_b, with
+            # g_b the resampled blocks' score and H the information), so that the parameters
+            # move with the customers drawn, as a full refit would make them, at the cost of a
+            # sum. Drawing the parameters independently of the customers was seen to give
+            # intervals about 20% too narrow.
+            block_scores = incidence @ model.scores(**summaries)  # blocks x 4
+            try:
+                step = np.linalg.solve(model.hessian_, ((block_counts - 1.0) @ block_scores).T).T
+            except np.linalg.LinAlgError:
+                step = np.zeros((len(block_counts), 4))
+            params = np.exp(np.clip(model.log_params_[None, :] + step, -12.0, 12.0))
             expected, active = [], []
             with warnings.catch_warnings(), np.errstate(all="ignore"):
                 warnings.simplefilter("ignore", RuntimeWarning)
@@ -323,9 +332,13 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
             continue
         retention = CohortRetention(lapse_days=longrun.lapse_days, step_days=longrun.retention_step_days,
                                     alpha=alpha).fit(rows["days_first_to_last"], rows["days_since_last"])
-        curve = retention.curve_.assign(cohort=cohort, first_quarter=first_quarter, customers=n, is_suppressed=False,
-                                        note=f"event: no order in the {longrun.lapse_days} days up to {through_end}; "
-                                             "others censored at their latest order")
+        # The curve stops where fewer than [report] small_cell customers are still at risk: a
+        # step there would be about a handful of people.
+        shown_curve = retention.curve_[retention.curve_["at_risk"] >= small_cell]
+        curve = shown_curve.assign(cohort=cohort, first_quarter=first_quarter, customers=n, is_suppressed=False,
+                                   note=f"event: no order in the {longrun.lapse_days} days up to {through_end}; "
+                                        "others censored at their latest order; the curve stops where fewer than "
+                                        f"{small_cell} customers are at risk")
         retention_rows.append(curve)
         with single_threaded_blas():
             value = CohortValue(rounds=longrun.bootstrap_rounds, n_blocks=longrun.n_blocks,
