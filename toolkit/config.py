@@ -101,7 +101,8 @@ class LongrunSettings:
     coupons_cap: int = 20
     drift_sample_customers: int = 5000
     drift_folds: int = 5
-    drift_permutation_repeats: int = 5
+    drift_permutation_repeats: int = 3
+    drift_adjacent: bool = True
     min_cohort_customers: int = 50
     cohort_burn_in_days: int = 90
     lapse_days: int = 180

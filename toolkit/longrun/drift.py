@@ -85,11 +85,6 @@ class QuarterClassifier:
 
     def fit(self, features: pd.DataFrame, label, *, groups) -> "QuarterClassifier":
         """``label`` 1 for the later quarter, 0 for the earlier; ``groups`` the customer of each row."""
-        from sklearn.ensemble import HistGradientBoostingClassifier
-        from sklearn.inspection import permutation_importance
-        from sklearn.metrics import roc_auc_score
-        from sklearn.model_selection import StratifiedGroupKFold
-
         label = np.asarray(label, dtype=int)
         groups = np.asarray(groups)
         if self.folds < 2:
@@ -98,53 +93,45 @@ class QuarterClassifier:
         if counts.min() < self.folds:
             raise AnalysisError(f"drift classifier: {counts.min()} customer-quarters in the smaller quarter, fewer than "
                                 f"the {self.folds} folds")
-        from threadpoolctl import threadpool_limits
-
         X = features.to_numpy(dtype=float)
-        # one thread: the fits are small, and OpenMP threads contending on a busy machine made them
-        # a hundred times slower
-        with threadpool_limits(limits=1):
-            self._fit_folds(X, label, groups, list(features.columns))
+        self._fit_folds(X, label, groups, list(features.columns))
         return self
 
     def _fit_folds(self, X, label, groups, columns) -> None:
         from sklearn.ensemble import HistGradientBoostingClassifier
-        from sklearn.inspection import permutation_importance
-        from sklearn.metrics import roc_auc_score
         from sklearn.model_selection import StratifiedGroupKFold
 
         counts = np.bincount(label, minlength=2)
         scores = np.zeros(len(label))
         drops = []
+        rng = np.random.default_rng(self.seed)
         splitter = StratifiedGroupKFold(n_splits=self.folds, shuffle=True, random_state=self.seed % (2**32))
-        for k, (train, test) in enumerate(splitter.split(X, label, groups)):
+        for train, test in splitter.split(X, label, groups):
             model = HistGradientBoostingClassifier(max_iter=60, learning_rate=0.1, max_leaf_nodes=8,
                                                    min_samples_leaf=20, random_state=self.seed % (2**32))
             model.fit(X[train], label[train])
-            scores[test] = model.predict_proba(X[test])[:, 1]
+            held_out = X[test]
+            scores[test] = model.predict_proba(held_out)[:, 1]
             if self.permutation_repeats > 0 and len(np.unique(label[test])) == 2:
-                result = permutation_importance(model, X[test], label[test], scoring="roc_auc",
-                                                n_repeats=self.permutation_repeats, random_state=self.seed % (2**32) + k)
-                drops.append(result.importances)  # features x repeats
+                drops.append(_permutation_drops(model, held_out, label[test], scores[test], self.permutation_repeats, rng))
         self.scores_ = scores
-        self.auc_ = float(roc_auc_score(label, scores))
+        self.auc_ = weighted_auc(label, scores)
         # customer-cluster bootstrap: customers drawn with replacement, all their rows with them
         codes, customers = pd.factorize(groups)
-        rng = np.random.default_rng(self.seed)
+        ranks = _AucRanks(label, scores)
         replicates = []
         for _ in range(self.bootstrap_rounds):
             weight = rng.multinomial(len(customers), np.full(len(customers), 1.0 / len(customers)))[codes]
-            if weight[label == 1].sum() == 0 or weight[label == 0].sum() == 0:
-                continue
-            replicates.append(roc_auc_score(label, scores, sample_weight=weight))
+            value = ranks.auc(weight)
+            if np.isfinite(value):
+                replicates.append(value)
         self.replicates_ = np.asarray(replicates)
         if drops:
             stacked = np.concatenate(drops, axis=1)
             self.importances_ = pd.DataFrame({"feature": columns, "importance": stacked.mean(axis=1),
                                               "importance_sd": stacked.std(axis=1)})
         else:
-            self.importances_ = pd.DataFrame({"feature": columns, "importance": np.nan,
-                                              "importance_sd": np.nan})
+            self.importances_ = pd.DataFrame({"feature": columns, "importance": np.nan, "importance_sd": np.nan})
         self.importances_ = self.importances_.sort_values("importance", ascending=False, ignore_index=True)
         self.n_from_, self.n_to_ = int(counts[0]), int(counts[1])
 
@@ -170,7 +157,51 @@ class QuarterClassifier:
         return self.to_html()
 
 
-def _pairs(quarters: list[str]) -> list[tuple[str, str, str]]:
+class _AucRanks:
+    """The AUC of fixed scores under varying row weights (the bootstrap): ties grouped once."""
+
+    def __init__(self, label: np.ndarray, scores: np.ndarray) -> None:
+        _, self.group = np.unique(scores, return_inverse=True)  # groups in increasing score
+        self.n_groups = int(self.group.max()) + 1 if len(scores) else 0
+        self.positive = np.asarray(label) == 1
+
+    def auc(self, weight: np.ndarray) -> float:
+        weight = np.asarray(weight, dtype=float)
+        pos = np.bincount(self.group, weights=weight * self.positive, minlength=self.n_groups)
+        neg = np.bincount(self.group, weights=weight * ~self.positive, minlength=self.n_groups)
+        total = pos.sum() * neg.sum()
+        if total == 0:
+            return float("nan")
+        below = np.cumsum(neg) - neg
+        return float(np.sum(pos * (below + 0.5 * neg)) / total)
+
+
+def weighted_auc(label, scores, weight=None) -> float:
+    """Area under the ROC curve: the chance that a random row of the later quarter scores above one
+    of the earlier (ties count a half), with optional row weights. Equal to scikit-learn's
+    ``roc_auc_score`` (tests/longrun/test_drift.py); written out so that the bootstrap and the
+    permutation importance group the ties once instead of validating inputs thousands of times."""
+    label = np.asarray(label)
+    return _AucRanks(label, np.asarray(scores, dtype=float)).auc(np.ones(len(label)) if weight is None else weight)
+
+
+def _permutation_drops(model, X: np.ndarray, label: np.ndarray, scores: np.ndarray, repeats: int,
+                       rng: np.random.Generator) -> np.ndarray:
+    """Fall in held-out AUC when each feature is shuffled (features x repeats): permutation importance
+    (Breiman 2001, Machine Learning 45; the same computation as scikit-learn's
+    ``permutation_importance`` with scoring="roc_auc")."""
+    baseline = weighted_auc(label, scores)
+    out = np.zeros((X.shape[1], repeats))
+    shuffled = X.copy()
+    for j in range(X.shape[1]):
+        for r in range(repeats):
+            shuffled[:, j] = X[rng.permutation(len(X)), j]
+            out[j, r] = baseline - weighted_auc(label, model.predict_proba(shuffled)[:, 1])
+        shuffled[:, j] = X[:, j]
+    return out
+
+
+def _pairs(quarters: list[str], adjacent: bool = True) -> list[tuple[str, str, str]]:
     """(comparison, earlier, later): year over year where the data reaches back, then adjacent."""
     present = set(quarters)
     pairs = []
@@ -179,8 +210,9 @@ def _pairs(quarters: list[str]) -> list[tuple[str, str, str]]:
         earlier = f"{year - 1}Q{number}"
         if earlier in present:
             pairs.append(("year_over_year", earlier, q))
-    for a, b in zip(quarters, quarters[1:]):
-        pairs.append(("adjacent", a, b))
+    if adjacent:
+        for a, b in zip(quarters, quarters[1:]):
+            pairs.append(("adjacent", a, b))
     return pairs
 
 
@@ -224,17 +256,32 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
     finally:
         cur.close()
     quarters = [f"{q.year}Q{(q.month - 1) // 3 + 1}" for q in whole]
-    pairs = _pairs(quarters)
+    pairs = _pairs(quarters, adjacent=longrun.drift_adjacent)
     if not any(c == "year_over_year" for c, _, _ in pairs):
-        notes.append("no year-over-year comparison: the data does not reach back a year before any whole quarter; "
-                     "only adjacent quarters are compared, and they differ by season too")
-    rows, importance_rows = [], []
+        notes.append("no year-over-year comparison: the data does not reach back a year before any whole quarter"
+                     + ("; only adjacent quarters are compared, and they differ by season too" if longrun.drift_adjacent
+                        else " and [longrun] drift_adjacent is false: nothing compared"))
     level = 1 - longrun.alpha
     sampled = any(population.get(q, 0) > longrun.drift_sample_customers for q in quarters)
     method = (f"gradient-boosted classifier, out-of-fold AUC ({longrun.drift_folds} folds grouped by customer), "
               f"customer-cluster bootstrap interval ({longrun.bootstrap_rounds} rounds), permutation importance")
     if sampled:
         method += f"; seeded sample of up to {longrun.drift_sample_customers:,} customers per quarter"
+    from threadpoolctl import threadpool_limits
+
+    limiter = threadpool_limits(limits=1)  # small fits: OpenMP threads contending on a busy machine cost more than they give
+    try:
+        rows, importance_rows = _compare(pairs, features, longrun, small_cell, level, method)
+    finally:
+        limiter.restore_original_limits()
+    drift = pd.DataFrame(rows, columns=COLUMNS)
+    importances = (pd.concat(importance_rows, ignore_index=True)[FEATURE_COLUMNS] if importance_rows
+                   else pd.DataFrame(columns=FEATURE_COLUMNS))
+    return {"population_drift": drift, "population_drift_features": importances}, notes
+
+
+def _compare(pairs, features, longrun, small_cell, level, method):
+    rows, importance_rows = [], []
     for comparison, a, b in pairs:
         part = features[features["quarter"].isin([a, b])]
         label = (part["quarter"] == b).to_numpy(dtype=int)
@@ -258,7 +305,4 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
         imp = fit.importances_.assign(comparison=comparison, quarter_from=a, quarter_to=b)
         imp["rank"] = np.arange(1, len(imp) + 1)
         importance_rows.append(imp)
-    drift = pd.DataFrame(rows, columns=COLUMNS)
-    importances = (pd.concat(importance_rows, ignore_index=True)[FEATURE_COLUMNS] if importance_rows
-                   else pd.DataFrame(columns=FEATURE_COLUMNS))
-    return {"population_drift": drift, "population_drift_features": importances}, notes
+    return rows, importance_rows
