@@ -12,7 +12,6 @@ broadcast sale, targeted campaigns every six weeks), then runs ``cohorts.analyse
 from __future__ import annotations
 
 import argparse
-import dataclasses
 import datetime as dt
 import resource
 import sys
@@ -25,7 +24,7 @@ import pandas as pd
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from toolkit.config import LongrunSettings, ReportSettings, Settings, WindowSettings  # noqa: E402
+from toolkit.config import LongrunSettings, ReportSettings, WindowSettings  # noqa: E402
 from toolkit.longrun import cohorts, counterfactual  # noqa: E402
 
 START = dt.date(2025, 1, 1)

@@ -77,7 +77,7 @@ def simulated_days(*, days: int = 200, lift: float = 0.0, seed: int = 3) -> tupl
 def test_placebo_series_without_a_sale_gives_an_interval_that_includes_zero(seed):
     """No sale at all: the model on a date with no sale must not find one in the sale's days
     (common practice, no source). The seeds are the first three tried; the false-alarm rate over
-    many seeds, for every window, is measured in bench/broadcast_calibration.py."""
+    many seeds, for every window, is measured in bench/longrun_calibration.py."""
     series, start = simulated_days(seed=seed)
     fit = BroadcastCounterfactual().fit(series, starts_on=start, ends_on=start + pd.Timedelta(days=6), after_days=14)
     during = fit.effects_.set_index("window").loc["during"]

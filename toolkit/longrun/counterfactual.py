@@ -24,7 +24,7 @@ themselves uncertain (on a short pre-period the level variance is often estimate
 which would make the forecast far too sure of itself): ``broadcast_parameter_draws`` draws of
 them from the asymptotic normal of their estimates each refilter the pre-period and draw the
 window sums from their own forecast; the interval is the percentile interval of those draws.
-Their calibration on simulated series is measured in ``bench/broadcast_calibration.py``.
+Their calibration on simulated series is measured in ``bench/longrun_calibration.py``.
 
 Placebo: the same model on a fake sale of the same length, on the latest stretch of unmasked days
 before the sale (fitted on the days before it): its interval should include zero. When it does
@@ -67,7 +67,7 @@ ASSUMPTIONS = (
     "the relation to the control series, when there are any, is the same during and after the sale as before it",
     "intervals are forecast intervals that also draw the model's variances from their estimates' asymptotic "
     "distribution; on simulated series they cover somewhat less often than their level says "
-    "(bench/broadcast_calibration.md)",
+    "(bench/longrun_calibration.md)",
 )
 
 
