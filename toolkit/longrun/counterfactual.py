@@ -415,7 +415,6 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
         elif horizon_end > pd.Timestamp(through_end):
             note_rows.append({"promotion_id": sale.promotion_id, "kind": "warning",
                               "note": f"the after-window is cut at the last day analysed ({through_end})"})
-        placebo_verdict: dict[str, bool | None] = {}
         length = int((sale.ends_on - sale.starts_on).days) + 1
         placebo_start = _placebo_start(masked, sale.starts_on, length, int(longrun.broadcast_min_pre_days))
         for outcome, column in OUTCOMES.items():
@@ -438,9 +437,16 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
             if placebo_start is not None:
                 fake_end = placebo_start + pd.Timedelta(days=length - 1)
                 placebo_y = y[y.index <= fake_end]
-                placebo = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
-                                        parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed)).fit(
-                    placebo_y, starts_on=placebo_start, ends_on=fake_end, after_days=0)
+                try:
+                    placebo = BroadcastCounterfactual(
+                        min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
+                        parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed),
+                    ).fit(placebo_y, starts_on=placebo_start, ends_on=fake_end, after_days=0)
+                except AnalysisError as exc:
+                    placebo = None
+                    note_rows.append({"promotion_id": sale.promotion_id, "kind": "warning",
+                                      "note": f"placebo ({outcome}) not run: {exc}"})
+            if placebo_start is not None and placebo is not None:
                 row = placebo.effects_.set_index("window").loc["during"]
                 verdict = bool(row["ci_low"] <= 0 <= row["ci_high"])
                 placebo_rows.append({"promotion_id": sale.promotion_id, "outcome": outcome,
@@ -452,7 +458,6 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
                     note_rows.append({"promotion_id": sale.promotion_id, "kind": "warning", "note": (
                         f"placebo ({outcome}): a fake sale on {placebo_start.date()} to {fake_end.date()} shows an "
                         "effect whose interval excludes zero; the counterfactual of this series is not reliable")})
-            placebo_verdict[outcome] = verdict
             note = "after: the sale's own pull-forward (negative when purchases were only moved earlier)"
             for effect in estimator.effects_.to_dict("records"):
                 effect_rows.append({"promotion_id": sale.promotion_id, "outcome": outcome, **effect,
