@@ -25,23 +25,26 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_campaign, run_campaigns, write_campaign
 
     if bool(args.promotion_id) == bool(args.all):
         raise ConfigError("give one PROMOTION_ID or --all (not both, not neither); "
                           "`liftlag campaign --all -c liftlag.toml` reads out every targeted campaign")
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
-    out = Path(args.out)
+    out = check_out_dir(args.out)
     if args.all:
         started = time.perf_counter()
         facts = run_campaigns(settings, out, console=console)
         for pid, reason in facts["skipped"].items():
-            err_console.print(f"[yellow]skipped {pid}:[/] {reason}")
+            err_console.print(f"[yellow]skipped {escape(str(pid))}:[/] {escape(str(reason))}")
         if not facts["campaigns"]:
-            raise AnalysisError("no targeted campaign could be analysed" + (
-                "" if facts["skipped"] else ": the workspace has no targeted promotion with assigned customers"))
-        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{out}[/]")
+            raise AnalysisError(_nothing_to_read_out(settings, facts))
+        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{escape(str(out))}[/]")
         return 0
     con = workspace.connect(settings)
     try:
@@ -52,18 +55,31 @@ def run_command(args) -> int:
     _print_summary(console, readout)
     for level, message in readout.notes:
         if level == "warning":
-            err_console.print(f"[yellow]note:[/] {message}")
+            err_console.print(f"[yellow]note:[/] {escape(str(message))}")
     html = [p for p in paths if p.suffix == ".html"]
-    console.print(f"readout: [bold]{html[0] if html else out}[/] (tables beside it)")
+    console.print(f"readout: [bold]{escape(str(html[0] if html else out))}[/] (tables beside it)")
     return 0
 
 
+def _nothing_to_read_out(settings, facts: dict) -> str:
+    """Why ``campaign --all`` found no campaign to read out."""
+    if facts["skipped"]:
+        return f"no targeted campaign could be analysed ({len(facts['skipped'])} skipped, reasons above)"
+    if "assignments" not in settings.tables:
+        return (f"there is no targeted campaign to read out: {settings.config_path} has no [tables.assignments] "
+                f"(an export of broadcast sales only); `liftlag timing` runs without assignments, and a targeted "
+                f"campaign needs its assignments file under [tables.assignments]")
+    return ("there is no targeted campaign to read out: the workspace has no targeted promotion with assigned "
+            "customers (check the promotions' audience values and the assignments' promotion ids)")
+
+
 def _print_summary(console, readout) -> None:
+    from rich.markup import escape
     from rich.table import Table
 
     status = readout.randomisation_check
     colour = {"passed": "green", "not run": "yellow"}.get(status, "bold red")
-    table = Table(title=f"campaign {readout.promotion_id}: randomisation check [{colour}]{status}[/]")
+    table = Table(title=f"campaign {escape(str(readout.promotion_id))}: randomisation check [{colour}]{escape(status)}[/]")
     for col in ("outcome", "window", "lift", "interval", "relative lift"):
         table.add_column(col, justify="left" if col in ("outcome", "window") else "right")
     summary = readout.summary
