@@ -223,8 +223,9 @@ def _mechanisms(scenario: Scenario) -> dict:
         "learning": {
             "active": scenario.has_learning,
             "acts_on": (
-                "every day's purchase hazard, times exp(-learning_full_price_per_coupon x min(coupons received, "
-                "learning_cap)); and each campaign's coupon hazard ratio, times exp(learning_coupon_per_coupon x "
+                "every day's purchase hazard, times exp(-learning_full_price_per_coupon x min(coupons received before "
+                "the latest campaign start, "
+                "learning_cap)); and each campaign's coupon hazard ratio where above 1, times exp(learning_coupon_per_coupon x "
                 "min(coupons received before it, learning_cap)): customers who have received more coupons buy "
                 "less at full price and respond more to the next coupon, so discount dependence rises"
             ),

@@ -105,13 +105,15 @@ class Scenario:
         campaign start, for customers who have received at least ``anticipation_min_coupons``
         coupons (treatment assignments of campaigns already started).
     anticipation_days, anticipation_min_coupons : int
-    learning_full_price_per_coupon : float, default=0.04
+    learning_full_price_per_coupon : float, default=0.03
         Customers learn to wait for deals: every day's purchase hazard is multiplied by
-        ``exp(-learning_full_price_per_coupon x min(coupons received, learning_cap))`` (coupons
-        received: treatment assignments of campaigns already started). 0 switches it off.
-    learning_coupon_per_coupon : float, default=0.10
-        ... and respond more to a coupon: a campaign's coupon hazard ratio is multiplied by
-        ``exp(learning_coupon_per_coupon x min(coupons received before it, learning_cap))``.
+        ``exp(-learning_full_price_per_coupon x min(coupons learned, learning_cap))`` (coupons
+        learned: treatment assignments received before the latest campaign start, so a coupon
+        teaches from the next campaign on). 0 switches it off.
+    learning_coupon_per_coupon : float, default=0.15
+        ... and respond more to a coupon: a campaign's coupon hazard ratio, where above 1, is
+        multiplied by ``exp(learning_coupon_per_coupon x min(coupons received before it,
+        learning_cap))`` (sure things and do-not-disturb customers keep theirs).
     learning_cap : int, default=10
     welcome_offer_starts_on, welcome_offer_ends_on : datetime.date
         Days on which a new customer's welcome order may use the sign-up offer (a discount code
@@ -179,8 +181,8 @@ class Scenario:
     anticipation_hr: float = 0.6
     anticipation_days: int = 7
     anticipation_min_coupons: int = 2
-    learning_full_price_per_coupon: float = 0.04
-    learning_coupon_per_coupon: float = 0.10
+    learning_full_price_per_coupon: float = 0.03
+    learning_coupon_per_coupon: float = 0.15
     learning_cap: int = 10
     pre_period_days: int = 365
     after_days: int = 28
