@@ -144,9 +144,12 @@ def test_tiny_export_broadcast_with_too_short_a_pre_period_gives_not_estimable_r
 
 
 def test_no_broadcast_promotion_gives_empty_tables_with_a_note(tmp_path):
-    from tests.conftest import TINY_PROMOTIONS
+    from tests.conftest import TINY_PROMOTIONS, TINY_TRANSACTIONS
 
-    settings = _tiny(tmp_path, promotions=[row for row in TINY_PROMOTIONS if row[5] != "broadcast"])
+    # The broadcast PB left out of the promotions, and its lines no longer naming it (a line
+    # naming a promotion the export lacks would be rejected).
+    lines = [row[:8] + ([""] if row[8] == "PB" else row[8:]) for row in TINY_TRANSACTIONS]
+    settings = _tiny(tmp_path, promotions=[row for row in TINY_PROMOTIONS if row[5] != "broadcast"], transactions=lines)
     con = workspace.connect(settings)
     tables, notes = counterfactual.analyse(con, settings, dt.date(2026, 6, 30))
     assert all(frame.empty for frame in tables.values())
