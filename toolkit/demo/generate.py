@@ -106,6 +106,7 @@ def generate(
         "campaigns": campaign_truth,
         "broadcasts": broadcast_truth,
         "realised": _realised(population, products, simulation, lines, campaign_truth),
+        "acquisition": _acquisition(scenario, calendar, population, simulation),
     }
     write_truth(out, truth, uplift_table)
     record = _record(seed, customers, truth["effects"], scenario)
@@ -237,6 +238,52 @@ def _mechanisms(scenario: Scenario) -> dict:
             "acts_on": "every customer's purchase hazard on each day of the sale (no dip follows a sale order)",
             "broadcast_hr": scenario.broadcast_hr,
         },
+    }
+
+
+def _acquisition(scenario: Scenario, calendar, population, simulation) -> dict:
+    """The welcome offer: who was deal-acquired, and how their later purchase rate differs.
+
+    ``rate_ratio`` is the ratio of the mean baseline hazards (deal-acquired / the other welcome
+    orders of the same span): below 1 means the deal-acquired cohort buys less often afterwards.
+    ``cohorts`` splits every customer first seen inside the history who ordered, as the cohort
+    analysis does, by whether the first order was a deal (the welcome offer, a coupon or the
+    sale): their mean baseline hazard and its ratio. Customers whose first order came on its own
+    are those who buy often (a size-biased draw), so that ratio is below 1 even when the offer
+    changes no one (the ``none`` variant): the cohort contrast is descriptive.
+    """
+    first = population.first_day
+    start, end = calendar.day_of(scenario.welcome_offer_starts_on), calendar.day_of(scenario.welcome_offer_ends_on)
+    in_span = population.welcome_order & (first >= start) & (first <= end)
+    deal = population.welcome_deal if population.welcome_deal is not None else np.zeros(len(first), bool)
+    other = in_span & ~deal
+    deal_rate = float(population.base_rate[deal].mean()) if deal.any() else None
+    other_rate = float(population.base_rate[other].mean()) if other.any() else None
+    # The first order of each customer first seen inside the history, and whether it was a deal.
+    first_order = {}
+    for customer, day, promo in zip(simulation.order_customer, simulation.order_day, simulation.order_promotion):
+        if customer not in first_order:  # orders are in day order
+            first_order[customer] = (day, promo)
+    cohort_rate = {}
+    members = np.array(sorted(c for c in first_order if first[c] >= 0), dtype=np.int64)
+    if len(members):
+        first_deal = np.array([first_order[c][1] >= 0 or (deal[c] and first_order[c][0] == first[c]) for c in members])
+        for name, take in (("deal_acquired", first_deal), ("full_price_acquired", ~first_deal)):
+            cohort_rate[name] = {"customers": int(take.sum()),
+                                 "mean_rate": round(float(population.base_rate[members[take]].mean()), 6) if take.any() else None}
+    rates = [cohort_rate.get(k, {}).get("mean_rate") for k in ("deal_acquired", "full_price_acquired")]
+    return {
+        "cohorts": cohort_rate,
+        "cohort_rate_ratio": round(rates[0] / rates[1], 6) if all(rates) else None,
+        "welcome_offer_starts_on": scenario.welcome_offer_starts_on.isoformat(),
+        "welcome_offer_ends_on": scenario.welcome_offer_ends_on.isoformat(),
+        "welcome_offer_depth": scenario.welcome_offer_depth,
+        "rate_factor": scenario.welcome_offer_rate_factor,
+        "deal_acquired_customers": int(deal.sum()),
+        "full_price_acquired_same_span": int(other.sum()),
+        "deal_acquired_mean_rate": None if deal_rate is None else round(deal_rate, 6),
+        "full_price_acquired_mean_rate": None if other_rate is None else round(other_rate, 6),
+        "rate_ratio": None if not (deal_rate and other_rate) else round(deal_rate / other_rate, 6),
     }
 
 
