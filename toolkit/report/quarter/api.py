@@ -281,3 +281,28 @@ def build_quarter_report(settings, quarter_text: str, out: str | Path, *, pdf: b
         shutil.rmtree(staging, ignore_errors=True)
     return QuarterReport(quarter=quarter, out=out, tables=tables, missing=inputs.missing, files=files,
                          call=manifest["call"], seconds=seconds)
+
+
+def run_demo_quarter(settings, out_dir: str | Path, console=None) -> dict:
+    """``liftlag demo``'s last step: the latest complete quarter's report in ``<out>/quarter-<Q>``.
+
+    Prints the PDF too when Chromium is installed (and says so when it is not).
+    """
+    from ... import workspace
+    from ..pdf import find_chromium
+    from .period import latest_complete_quarter
+
+    con = workspace.connect(settings)
+    try:
+        quarter = latest_complete_quarter(con)
+    finally:
+        con.close()
+    if quarter is None:
+        return {"skipped": "no quarter with purchases"}
+    pdf = find_chromium() is not None
+    target = Path(out_dir) / f"quarter-{quarter}"
+    result = build_quarter_report(settings, quarter, target, pdf=pdf)
+    if console is not None:
+        console.print(f"  quarterly report {quarter}: call {result.call}; {target / 'report.html'}"
+                      + ("" if pdf else " (no PDF: Chromium is not installed)"))
+    return {"quarter": quarter, "out": str(target), "call": result.call, "pdf": pdf, "seconds": result.seconds}

@@ -86,3 +86,13 @@ def require_quarter(con, text: str) -> Quarter:
     if quarter.label not in present:
         raise ConfigError(f"quarter {quarter.label} has no purchases in this export; quarters in this export: {shown}")
     return quarter
+
+
+def latest_complete_quarter(con) -> str | None:
+    """The last quarter the export covers to its end (the last quarter present if none is complete)."""
+    present = quarters_present(con)
+    if not present:
+        return None
+    _, last = export_days(con)
+    complete = [q for q in present if Quarter.parse(q).last_day <= last]
+    return complete[-1] if complete else present[-1]
