@@ -87,6 +87,30 @@ class TimingSettings:
     late_period_days: int = 14
 
 
+@dataclass(frozen=True)
+class LongrunSettings:
+    """``[longrun]``: the long-run analyses (``liftlag longrun``). Each setting is documented in README."""
+
+    seed: int = 20261201
+    alpha: float = 0.05
+    bootstrap_rounds: int = 200
+    n_blocks: int = 64
+    reference_depth: float = 0.2
+    dependent_threshold: float = 0.5
+    responsiveness_sample_customers: int = 20000
+    coupons_cap: int = 20
+    drift_sample_customers: int = 20000
+    drift_folds: int = 5
+    drift_permutation_repeats: int = 5
+    min_cohort_customers: int = 50
+    cohort_burn_in_days: int = 90
+    lapse_days: int = 180
+    retention_step_days: int = 30
+    broadcast_pre_days: int = 365
+    broadcast_min_pre_days: int = 28
+    broadcast_mask_after_days: int = 14
+
+
 # Settings that take one of a few words.
 CHOICES = {
     "timing.dip_after": ("targeted", "any"),
@@ -131,6 +155,7 @@ class Settings:
     windows: WindowSettings = WindowSettings()
     campaign: CampaignSettings = CampaignSettings()
     timing: TimingSettings = TimingSettings()
+    longrun: LongrunSettings = LongrunSettings()
     report: ReportSettings = ReportSettings()
     workspace: WorkspaceSettings = WorkspaceSettings()
     engine: EngineSettings = EngineSettings()
@@ -154,6 +179,7 @@ _SECTIONS = {
     "windows": WindowSettings,
     "campaign": CampaignSettings,
     "timing": TimingSettings,
+    "longrun": LongrunSettings,
     "report": ReportSettings,
     "workspace": WorkspaceSettings,
     "engine": EngineSettings,
@@ -292,7 +318,8 @@ def _parse_section(path: Path, name: str, body: Any):
                 raise ConfigError(f"{path}: key '{full}' must be one of {', '.join(CHOICES[full])}, found {value!r}")
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
-                     "baseline_threshold", "target_lift", "min_regular_share"):
+                     "baseline_threshold", "target_lift", "min_regular_share",
+                     "reference_depth", "dependent_threshold"):
             kwargs[key] = _share(path, full, value)
         elif key == "exclude_features":
             _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")

@@ -106,6 +106,7 @@ def generate(
         "campaigns": campaign_truth,
         "broadcasts": broadcast_truth,
         "realised": _realised(population, products, simulation, lines, campaign_truth),
+        "acquisition": _acquisition(scenario, calendar, population),
     }
     write_truth(out, truth, uplift_table)
     record = _record(seed, customers, truth["effects"], scenario)
@@ -224,6 +225,32 @@ def _mechanisms(scenario: Scenario) -> dict:
             "acts_on": "every customer's purchase hazard on each day of the sale (no dip follows a sale order)",
             "broadcast_hr": scenario.broadcast_hr,
         },
+    }
+
+
+def _acquisition(scenario: Scenario, calendar, population) -> dict:
+    """The welcome offer: who was deal-acquired, and how their later purchase rate differs.
+
+    ``rate_ratio`` is the ratio of the mean baseline hazards (deal-acquired / the other welcome
+    orders of the same span): below 1 means the deal-acquired cohort buys less often afterwards.
+    """
+    first = population.first_day
+    start, end = calendar.day_of(scenario.welcome_offer_starts_on), calendar.day_of(scenario.welcome_offer_ends_on)
+    in_span = population.welcome_order & (first >= start) & (first <= end)
+    deal = population.welcome_deal if population.welcome_deal is not None else np.zeros(len(first), bool)
+    other = in_span & ~deal
+    deal_rate = float(population.base_rate[deal].mean()) if deal.any() else None
+    other_rate = float(population.base_rate[other].mean()) if other.any() else None
+    return {
+        "welcome_offer_starts_on": scenario.welcome_offer_starts_on.isoformat(),
+        "welcome_offer_ends_on": scenario.welcome_offer_ends_on.isoformat(),
+        "welcome_offer_depth": scenario.welcome_offer_depth,
+        "rate_factor": scenario.welcome_offer_rate_factor,
+        "deal_acquired_customers": int(deal.sum()),
+        "full_price_acquired_same_span": int(other.sum()),
+        "deal_acquired_mean_rate": None if deal_rate is None else round(deal_rate, 6),
+        "full_price_acquired_mean_rate": None if other_rate is None else round(other_rate, 6),
+        "rate_ratio": None if not (deal_rate and other_rate) else round(deal_rate / other_rate, 6),
     }
 
 

@@ -101,6 +101,17 @@ class Scenario:
         campaign start, for customers who have received at least ``anticipation_min_coupons``
         coupons (treatment assignments of campaigns already started).
     anticipation_days, anticipation_min_coupons : int
+    welcome_offer_starts_on, welcome_offer_ends_on : datetime.date
+        Days on which a new customer's welcome order may use the sign-up offer (a discount code
+        with no promotion id in the export).
+    welcome_offer_share : float, default=0.8
+        Share of the welcome orders placed in that span that use the offer: those customers are
+        deal-acquired.
+    welcome_offer_depth : float, default=0.15
+        Fraction off the welcome order.
+    welcome_offer_rate_factor : float, default=0.5
+        Factor on a deal-acquired customer's baseline hazard (the offer brings in customers who
+        buy less often afterwards); 1 in the ``none`` variant.
     pre_period_days, after_days : int
         Pre-period used for the recency/frequency features; days after a campaign window over
         which the truth measures pull-forward.
@@ -159,6 +170,11 @@ class Scenario:
     pre_period_days: int = 365
     after_days: int = 28
     margin_rate: float = 0.38
+    welcome_offer_starts_on: date = date(2025, 4, 1)
+    welcome_offer_ends_on: date = date(2025, 6, 30)
+    welcome_offer_share: float = 0.8
+    welcome_offer_depth: float = 0.15
+    welcome_offer_rate_factor: float = 0.5
 
     @classmethod
     def for_effects(cls, effects: str = "all", **overrides: Any) -> "Scenario":
@@ -168,7 +184,8 @@ class Scenario:
         ----------
         effects : {"all", "uplift_only", "none"}, default="all"
             ``uplift_only`` sets the dip and anticipation hazard ratios to 1 and their day counts
-            to 0; ``none`` also sets every coupon and broadcast hazard ratio to 1.
+            to 0; ``none`` also sets every coupon and broadcast hazard ratio, and the welcome offer's
+            rate factor, to 1.
         **overrides
             Any field of :class:`Scenario`.
 
@@ -192,6 +209,7 @@ class Scenario:
                 uplift_recent_infrequent_hr=1.0,
                 do_not_disturb_hr=1.0,
                 broadcast_hr=1.0,
+                welcome_offer_rate_factor=1.0,
             )
         values.update(overrides)
         scenario = cls(**values)
@@ -203,12 +221,13 @@ class Scenario:
         if self.ends_on <= self.starts_on:
             raise ConfigError(f"demo scenario: ends_on {self.ends_on} must be after starts_on {self.starts_on}")
         for name in ("existing_share", "welcome_order_share", "household_garden_share", "audience_share",
-                     "holdout_share", "return_line_share"):
+                     "holdout_share", "return_line_share", "welcome_offer_share", "welcome_offer_depth"):
             value = getattr(self, name)
             if not 0.0 <= value <= 1.0:
                 raise ConfigError(f"demo scenario: {name} must be between 0 and 1, found {value!r}")
         for name in ("base_rate_mean", "base_rate_shape", "broadcast_hr", "uplift_base_hr", "uplift_garden_hr",
-                     "uplift_recent_infrequent_hr", "do_not_disturb_hr", "post_promotion_dip_hr", "anticipation_hr"):
+                     "uplift_recent_infrequent_hr", "do_not_disturb_hr", "post_promotion_dip_hr", "anticipation_hr",
+                     "welcome_offer_rate_factor"):
             value = getattr(self, name)
             if not value > 0:
                 raise ConfigError(f"demo scenario: {name} must be positive, found {value!r}")
