@@ -25,7 +25,7 @@ INK = "#1c2430"
 MUTED = "#5d6b7a"
 GRID = "#e3e7ec"
 PALETTE = {
-    "blue": "#1f4e79",     # first series (treated, actual, after a deal)
+    "blue": "#1a466f",     # first series (treated, actual, after a deal)
     "amber": "#d08700",    # second series (holdout, counterfactual, full price)
     "teal": "#2e8b7a",
     "plum": "#7b3f7a",
@@ -121,13 +121,15 @@ class _Frame:
     """Axes: maps data to pixels, draws grid, ticks and axis labels."""
 
     def __init__(self, x_range, y_range, *, height: int, x_label: str, y_label: str, y_percent=False,
-                 x_percent=False, x_ticks=None, left: int | None = None, x_tick_labels: dict | None = None):
+                 x_percent=False, x_ticks=None, left: int | None = None, x_tick_labels: dict | None = None,
+                 bottom_extra: int = 0):
         self.width = WIDTH
         self.height = height
         self.left = left or MARGIN["left"]
         self.right = self.width - MARGIN["right"]
         self.top = MARGIN["top"]
-        self.bottom = height - MARGIN["bottom"]
+        self.bottom = height - MARGIN["bottom"] - bottom_extra
+        self.label_gap = 36 + bottom_extra
         self.x_tick_labels = x_tick_labels or {}
         if x_tick_labels:
             keys = sorted(x_tick_labels)
@@ -165,7 +167,7 @@ class _Frame:
             parts.append(f'<text x="{x:.1f}" y="{self.bottom + 17}" text-anchor="middle" class="tick">'
                          f'{escape(str(shown))}</text>')
         parts.append(f'<line x1="{self.left}" x2="{self.right}" y1="{self.bottom}" y2="{self.bottom}" stroke="{MUTED}"/>')
-        parts.append(f'<text x="{(self.left + self.right) / 2:.1f}" y="{self.bottom + 36}" text-anchor="middle" '
+        parts.append(f'<text x="{(self.left + self.right) / 2:.1f}" y="{self.bottom + self.label_gap}" text-anchor="middle" '
                      f'class="axis">{escape(self.x_label)}</text>')
         parts.append(f'<text transform="translate(14 {(self.top + self.bottom) / 2:.1f}) rotate(-90)" '
                      f'text-anchor="middle" class="axis">{escape(self.y_label)}</text>')
@@ -226,7 +228,7 @@ def line_chart(series: Sequence[Series], *, title: str, caption: str, x_label: s
             if len(band) > 1:
                 upper = " ".join(f"{frame.x(x):.1f},{frame.y(hi):.1f}" for x, _, hi in band)
                 lower = " ".join(f"{frame.x(x):.1f},{frame.y(lo):.1f}" for x, lo, _ in reversed(band))
-                body.append(f'<polygon points="{upper} {lower}" fill="{tint}" fill-opacity="0.55" stroke="none"/>')
+                body.append(f'<polygon points="{upper} {lower}" fill="{tint}" fill-opacity="0.4" stroke="none"/>')
         if s.step and len(pts) > 1:
             stepped = [pts[0]]
             for (x0, y0), (x1, y1) in zip(pts, pts[1:]):
@@ -314,8 +316,9 @@ def bar_chart(categories: Sequence[str], values: Sequence[float], *, title: str,
     if not finite:
         raise ValueError("a bar chart needs at least one finite value")
     lo, hi = min(finite + extra + [0.0]), max(finite + extra + [0.0])
-    frame = _Frame((0, len(categories)), (lo, hi + 0.08 * ((hi - lo) or 1)), height=height, x_label=x_label,
-                   y_label=y_label, y_percent=y_percent, x_ticks=[])
+    slanted = len(categories) > 8 and max(len(str(c)) for c in categories) > 3
+    frame = _Frame((0, len(categories)), (lo, hi + 0.08 * ((hi - lo) or 1)), height=height + (36 if slanted else 0),
+                   x_label=x_label, y_label=y_label, y_percent=y_percent, x_ticks=[], bottom_extra=36 if slanted else 0)
     frame.x0, frame.x1 = 0, len(categories)
     body = frame.axes()
     fill = PALETTE.get(colour, colour)
@@ -330,7 +333,13 @@ def bar_chart(categories: Sequence[str], values: Sequence[float], *, title: str,
             cx = x + slot * 0.35
             body.append(f'<line x1="{cx:.1f}" x2="{cx:.1f}" y1="{frame.y(low[i]):.1f}" y2="{frame.y(high[i]):.1f}" '
                         f'stroke="{INK}" stroke-width="1.4"/>')
-        body.append(f'<text x="{x + slot * 0.35:.1f}" y="{frame.bottom + 15}" text-anchor="middle" class="tick">{escape(str(cat))}</text>')
+        if slanted:  # long labels
+            cx = x + slot * 0.35
+            body.append(f'<text x="{cx:.1f}" y="{frame.bottom + 12}" text-anchor="end" class="tick" '
+                        f'transform="rotate(-30 {cx:.1f} {frame.bottom + 12})">{escape(str(cat))}</text>')
+        else:
+            body.append(f'<text x="{x + slot * 0.35:.1f}" y="{frame.bottom + 15}" text-anchor="middle" class="tick">'
+                        f'{escape(str(cat))}</text>')
     body.append(f'<line x1="{frame.left}" x2="{frame.right}" y1="{zero:.1f}" y2="{zero:.1f}" stroke="{INK}"/>')
-    return Chart(_svg(body, height=height, title=title, caption=caption, kind="bar"), title, caption, "bar",
+    return Chart(_svg(body, height=frame.height, title=title, caption=caption, kind="bar"), title, caption, "bar",
                  len(categories))

@@ -12,6 +12,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
 import pandas as pd
 
 NA = "—"
@@ -31,6 +32,8 @@ def _number(v: float) -> str:
         return f"{v:,.0f}"
     if abs(v) >= 100:
         return f"{v:,.1f}"
+    if abs(v) < 0.001:
+        return np.format_float_positional(v, precision=2, unique=False, fractional=False, trim="-")
     return f"{v:.3g}"
 
 
@@ -85,7 +88,7 @@ def cell(frame: pd.DataFrame, table: str, row: int, column: str, kind: str, *, s
                     reason=f"fewer than {k} customers")
     if column not in frame.columns:
         return Cell(text=NA)
-    value = frame[column].iloc[int(row)]
+    value = frame[column].loc[int(row)]  # row labels are positions in the table as written (RangeIndex)
     if not finite(value):
         return Cell(text=NA)
     return Cell(text=fmt(value, kind), table=table, column=column, row=int(row), value=repr(float(value)), kind=kind)
@@ -105,7 +108,12 @@ def too_few(*counts, k: int) -> bool:
     return False
 
 
-def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60) -> tuple[list[str], list[list], int]:
+DESCRIPTORS = {"bin", "decile", "week", "period", "index_from", "index_to", "days", "day", "year", "quarter_no",
+               "horizon_days", "cohort_index", "months_since", "quarters_since", "ci_level"}
+
+
+def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60,
+                 columns: list[str] | None = None) -> tuple[list[str], list[list], int]:
     """A table of unknown shape, laid out as it is: text columns as text, numbers bound as cells.
 
     Numbers in a row whose customer count (``customers``, ``n_customers``, ``n``, ``n_treated``,
@@ -113,22 +121,25 @@ def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60)
     """
     count_cols = [c for c in ("customers", "n_customers", "n", "n_treated", "n_holdout", "cohort_customers",
                               "customers_from", "customers_to") if c in frame.columns]
-    columns = [c for c in frame.columns if c != "customer_id"]
+    shown = columns
+    columns = [c for c in (shown or frame.columns) if c != "customer_id" and c in frame.columns
+               and c != "is_suppressed"]
     rows = []
-    for i in range(min(len(frame), max_rows)):
-        small = too_few(*[frame[c].iloc[i] for c in count_cols], k=k) if count_cols else False
+    for i in frame.index[:max_rows]:  # labels = positions in the table as written, also in a filtered view
+        small = too_few(*[frame[c].loc[i] for c in count_cols], k=k) if count_cols else False
+        if "is_suppressed" in frame.columns and bool(frame["is_suppressed"].loc[i]):
+            small = True
         out = []
         for col in columns:
-            value = frame[col].iloc[i]
+            value = frame[col].loc[i]
             if isinstance(value, (bool,)) or pd.api.types.is_bool_dtype(frame[col]):
                 out.append({"text": "yes" if value else "no"})
             elif pd.api.types.is_numeric_dtype(frame[col]):
-                kind = ("count" if pd.api.types.is_integer_dtype(frame[col])
+                kind = ("count" if col in count_cols or pd.api.types.is_integer_dtype(frame[col])
                         else "percent" if ("share" in col or col.endswith("_rate") or "retention" in col) else "number")
-                if col in count_cols:
-                    out.append(cell(frame, table, i, col, kind, suppress=small, k=k))
-                else:
-                    out.append(cell(frame, table, i, col, kind, suppress=small, k=k))
+                # a row's descriptors (its bin, week, band edges) describe no customer: never suppressed
+                out.append(cell(frame, table, i, col, "number" if col in DESCRIPTORS else kind,
+                                suppress=small and col not in DESCRIPTORS, k=k))
             else:
                 out.append({"text": "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)})
         rows.append(out)

@@ -286,7 +286,18 @@ def campaign_sections(tables, missing, k: int, currency: str, alpha: float) -> d
 # --- the tails ---------------------------------------------------------------------------------------
 
 
-def tails_section(tables, missing, k: int, alpha: float) -> dict:
+def in_quarter(frame: pd.DataFrame, quarter: str, previous: str | None = None) -> pd.DataFrame:
+    """The rows of a long-run table about the report's quarter (and the one before, if asked)."""
+    keep = {quarter} | ({previous} if previous else set())
+    if "quarter_to" in frame.columns:
+        return frame[frame["quarter_to"].astype(str) == quarter]
+    if "quarter" in frame.columns:
+        return frame[frame["quarter"].astype(str).isin(keep)]
+    return frame
+
+
+def tails_section(tables, missing, k: int, alpha: float, quarter: str | None = None,
+                  previous: str | None = None) -> dict:
     tails = tables["uplift_tails"]
     out = {"campaigns": [], "reason": None if len(tails) else missing.get("uplift_deciles", "no uplift deciles in the quarter")}
     for pid, group in tails.groupby("promotion_id", sort=False):
@@ -321,22 +332,25 @@ def tails_section(tables, missing, k: int, alpha: float) -> dict:
     dist = tables.get("dependence_distribution")
     out["distribution_reason"] = _missing(tables, missing, "dependence_distribution")
     if dist is not None:
-        cols, rows, total = generic_rows(dist, "dependence_distribution", k=k)
+        shown = in_quarter(dist, quarter, previous) if quarter else dist
+        cols, rows, total = generic_rows(shown, "dependence_distribution", k=k)
         out["distribution"] = {"columns": cols, "rows": rows, "total": total}
-        out["distribution_chart"] = _distribution_chart(dist, k)
+        out["distribution_chart"] = _distribution_chart(dist, k, quarter)
     return out
 
 
-def _distribution_chart(dist: pd.DataFrame, k: int):
+def _distribution_chart(dist: pd.DataFrame, k: int, quarter: str | None = None):
     """Bars of customers by dependence band for the latest quarter, when the table has that shape."""
-    band = next((c for c in ("band", "bin", "dependence_band", "bucket") if c in dist.columns), None)
+    band = next((c for c in ("band_label", "band", "bin", "dependence_band", "bucket") if c in dist.columns), None)
     count = next((c for c in ("customers", "share") if c in dist.columns), None)
     if band is None or count is None:
         return None
     frame = dist
-    if "quarter" in frame.columns:
-        frame = frame[frame["quarter"].astype(str) == frame["quarter"].astype(str).max()]
-    values = [v if "customers" != count or v >= k else math.nan for v in frame[count]]
+    if "quarter" in frame.columns and quarter is not None:
+        frame = frame[frame["quarter"].astype(str) == quarter]
+    if "is_suppressed" in frame.columns:
+        frame = frame.assign(**{count: frame[count].where(~frame["is_suppressed"].astype(bool))})
+    values = [v if finite(v) and (count != "customers" or v >= k) else math.nan for v in frame[count]]
     n = int(frame["customers"].sum()) if "customers" in frame.columns else 0
     return _safe_chart(charts.bar_chart, [str(b) for b in frame[band]], values,
                        title="Customers by dependence on deals" + (f", {frame['quarter'].iloc[0]}" if "quarter" in frame.columns and len(frame) else ""),
@@ -423,7 +437,8 @@ def timing_section(tables, missing, k: int, alpha: float, horizon_days: int = 18
 # --- the long run ----------------------------------------------------------------------------------
 
 
-def longrun_section(tables, missing, k: int, alpha: float) -> dict:
+def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None = None,
+                    previous: str | None = None) -> dict:
     out = {}
     dep = tables.get("dependence_by_quarter")
     out["dependence_reason"] = _missing(tables, missing, "dependence_by_quarter")
@@ -431,10 +446,12 @@ def longrun_section(tables, missing, k: int, alpha: float) -> dict:
         quarters = dep["quarter"].astype(str).tolist()
         x = list(range(len(quarters)))
         series = []
-        for col, colour in (("dependence_index_p50", "blue"), ("dependence_index_p90", "amber")):
+        names = {"dependence_index_mean": "mean", "dependence_index_p50": "median customer",
+                 "dependence_index_p90": "90th percentile"}
+        for col, colour in (("dependence_index_mean", "blue"), ("dependence_index_p50", "amber"),
+                            ("dependence_index_p90", "teal")):
             if col in dep.columns:
-                series.append(charts.Series(col.replace("dependence_index_", "dependence index, ").replace("p50", "median")
-                                            .replace("p90", "90th percentile"), x, dep[col].tolist(),
+                series.append(charts.Series(names[col], x, dep[col].tolist(),
                                             dep.get(f"{col}_ci_low", pd.Series([None] * len(dep))).tolist(),
                                             dep.get(f"{col}_ci_high", pd.Series([None] * len(dep))).tolist(), colour=colour))
         n = int(dep["customers"].min()) if "customers" in dep.columns and len(dep) else 0
@@ -443,7 +460,10 @@ def longrun_section(tables, missing, k: int, alpha: float) -> dict:
             caption=f"n = at least {n:,} customers per quarter; {_level(dep, 1 - alpha)} intervals; "
                     f"x: quarters {quarters[0]} to {quarters[-1]}",
             x_label="quarter", y_label="dependence index", x_tick_labels=dict(zip(x, quarters))) if series else None
-        cols, rows, total = generic_rows(dep, "dependence_by_quarter", k=k)
+        shown = ["quarter", "customers", "dependence_index_mean", "dependence_index_mean_ci_low",
+                 "dependence_index_mean_ci_high", "dependence_index_p50", "dependence_index_p90", "full_price_share",
+                 "full_price_share_ci_low", "full_price_share_ci_high", "deal_only_share", "mean_depth"]
+        cols, rows, total = generic_rows(dep, "dependence_by_quarter", k=k, columns=shown)
         out["dependence"] = {"columns": cols, "rows": rows, "total": total}
     out["tables"] = []
     for name, title in (("dependence_transitions", "Dependence transitions between quarters"),
@@ -455,7 +475,8 @@ def longrun_section(tables, missing, k: int, alpha: float) -> dict:
         if frame is None:
             out["tables"].append({"name": name, "title": title, "reason": missing.get(name, f"{name} not produced")})
             continue
-        cols, rows, total = generic_rows(frame, name, k=k)
+        shown = in_quarter(frame, quarter, previous) if quarter and name != "broadcast_effects" else frame
+        cols, rows, total = generic_rows(shown, name, k=k)
         out["tables"].append({"name": name, "title": title, "columns": cols, "rows": rows, "total": total, "reason": None})
     series_table = tables.get("broadcast_series")
     out["broadcast_reason"] = _missing(tables, missing, "broadcast_series")

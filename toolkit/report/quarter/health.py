@@ -54,6 +54,8 @@ class Indicator:
 
 
 DEPENDENCE = (
+    Indicator("dependence_index_mean", "Dependence index, mean over customers", "index", "up", "dependence_by_quarter",
+              "customers lean more on deals", "customers lean less on deals"),
     Indicator("dependence_index_p50", "Dependence index, median customer", "index", "up", "dependence_by_quarter",
               "the typical customer leans more on deals", "the typical customer leans less on deals"),
     Indicator("dependence_index_p90", "Dependence index, 90th percentile", "index", "up", "dependence_by_quarter",
@@ -302,9 +304,12 @@ def verdict(indicators: pd.DataFrame, economics: pd.DataFrame, tails: pd.DataFra
             call = "watch"
             reasons.append(f"{len(levels)} indicator(s) without a quarterly series sit at a harmful level: "
                            + ", ".join(levels["label"].str.split(" \\(").str[0]))
-        if margin_state in ("unclear",):
+        if margin_state == "unclear":
             call = "watch"
             reasons.append("the quarter's net incremental margin could be zero (its interval includes zero)")
+        elif margin_state == "negative":
+            call = "watch"
+            reasons.append("the quarter's net incremental margin is below zero (act_on_negative_margin is off)")
         if report.watch_on_groups_against and len(against):
             call = "watch"
             reasons.append(f"{len(against)} decile(s) or segment(s) move against their campaign's average")
@@ -316,7 +321,7 @@ def verdict(indicators: pd.DataFrame, economics: pd.DataFrame, tails: pd.DataFra
     rule = (f"act: at least {report.act_min_adverse} adverse indicators"
             + (" or a net incremental margin whose interval lies below zero" if report.act_on_negative_margin else "")
             + f"; watch: at least {report.watch_min_adverse} adverse indicator(s), an indicator without a quarterly "
-              f"series at a harmful level, or a margin interval that includes zero"
+              f"series at a harmful level, or a margin interval that includes zero (or lies below it)"
             + (", or a group moving against its campaign's average" if report.watch_on_groups_against else "")
             + "; healthy: otherwise")
     return pd.DataFrame([{

@@ -9,6 +9,7 @@ from markupsafe import Markup
 
 from .. import charts
 from . import context as ctx
+from .period import Quarter
 
 TEMPLATES = Path(__file__).resolve().parents[1] / "templates"
 
@@ -39,6 +40,7 @@ def build_context(tables: dict, missing: dict, notes: list, settings, facts: dic
     alpha = settings.campaign.alpha
     currency = settings.economics.currency
     quarter = facts["quarter"]
+    previous = Quarter.parse(quarter).previous().label
     return {
         "title": f"Promotion health report, {quarter}",
         "quarter": quarter, "facts": facts, "currency": currency, "k": k,
@@ -47,9 +49,9 @@ def build_context(tables: dict, missing: dict, notes: list, settings, facts: dic
         "font": Markup(charts.FONT),  # a constant of ours (quotes must stay quotes inside <style>)
         "verdict": ctx.verdict_section(tables, missing, k, currency, alpha),
         "campaigns": ctx.campaign_sections(tables, missing, k, currency, alpha),
-        "tails": ctx.tails_section(tables, missing, k, alpha),
+        "tails": ctx.tails_section(tables, missing, k, alpha, quarter, previous),
         "timing": ctx.timing_section(tables, missing, k, alpha, horizon_days=2 * settings.timing.horizon_days),
-        "longrun": ctx.longrun_section(tables, missing, k, alpha),
+        "longrun": ctx.longrun_section(tables, missing, k, alpha, quarter, previous),
         "quality": ctx.quality_section(tables, missing, notes, k),
         "methods": methods_context(settings),
         "missing": missing,
