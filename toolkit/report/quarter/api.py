@@ -54,6 +54,7 @@ class QuarterReport:
     files: list[str]
     call: str
     seconds: dict[str, float] = field(default_factory=dict)
+    inputs: QuarterInputs | None = None
 
 
 def ensure_built(settings, progress=None):
@@ -280,7 +281,7 @@ def build_quarter_report(settings, quarter_text: str, out: str | Path, *, pdf: b
     finally:
         shutil.rmtree(staging, ignore_errors=True)
     return QuarterReport(quarter=quarter, out=out, tables=tables, missing=inputs.missing, files=files,
-                         call=manifest["call"], seconds=seconds)
+                         call=manifest["call"], seconds=seconds, inputs=inputs)
 
 
 def run_demo_quarter(settings, out_dir: str | Path, console=None) -> dict:
