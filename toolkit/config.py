@@ -109,6 +109,7 @@ class LongrunSettings:
     broadcast_pre_days: int = 365
     broadcast_min_pre_days: int = 28
     broadcast_mask_after_days: int = 14
+    broadcast_mask_before_days: int = 7
 
 
 # Settings that take one of a few words.

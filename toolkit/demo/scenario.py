@@ -15,13 +15,17 @@ from typing import Any
 
 from ..errors import ConfigError
 
-EFFECTS = ("all", "uplift_only", "none")
+EFFECTS = ("all", "uplift_only", "none", "stationary")
 """The scenario variants.
 
 ``all``: every mechanism on. ``uplift_only``: the coupon and the broadcast sale still raise the
 purchase hazard, but there is no post-promotion dip and no anticipation (a data set on which a
 timing analysis must find nothing). ``none``: no mechanism at all; coupons and the sale change no
-one's behaviour (an A/A data set on which every effect must come out null).
+one's behaviour (an A/A data set on which every effect must come out null). ``stationary``: coupons
+and the sale work as in ``all``, but nothing changes from one year to the next: no learning, no
+new customers, one campaign a quarter on the same dates each year, a coupon response that does
+not depend on the customer's purchase history, no anticipation (a data set on which the long-run
+drift analyses must find nothing).
 """
 
 
@@ -101,6 +105,14 @@ class Scenario:
         campaign start, for customers who have received at least ``anticipation_min_coupons``
         coupons (treatment assignments of campaigns already started).
     anticipation_days, anticipation_min_coupons : int
+    learning_full_price_per_coupon : float, default=0.04
+        Customers learn to wait for deals: every day's purchase hazard is multiplied by
+        ``exp(-learning_full_price_per_coupon x min(coupons received, learning_cap))`` (coupons
+        received: treatment assignments of campaigns already started). 0 switches it off.
+    learning_coupon_per_coupon : float, default=0.10
+        ... and respond more to a coupon: a campaign's coupon hazard ratio is multiplied by
+        ``exp(learning_coupon_per_coupon x min(coupons received before it, learning_cap))``.
+    learning_cap : int, default=10
     welcome_offer_starts_on, welcome_offer_ends_on : datetime.date
         Days on which a new customer's welcome order may use the sign-up offer (a discount code
         with no promotion id in the export).
@@ -167,6 +179,9 @@ class Scenario:
     anticipation_hr: float = 0.6
     anticipation_days: int = 7
     anticipation_min_coupons: int = 2
+    learning_full_price_per_coupon: float = 0.04
+    learning_coupon_per_coupon: float = 0.10
+    learning_cap: int = 10
     pre_period_days: int = 365
     after_days: int = 28
     margin_rate: float = 0.38
@@ -182,10 +197,11 @@ class Scenario:
 
         Parameters
         ----------
-        effects : {"all", "uplift_only", "none"}, default="all"
+        effects : {"all", "uplift_only", "none", "stationary"}, default="all"
             ``uplift_only`` sets the dip and anticipation hazard ratios to 1 and their day counts
-            to 0; ``none`` also sets every coupon and broadcast hazard ratio, and the welcome offer's
-            rate factor, to 1.
+            to 0 (and switches learning off); ``none`` also sets every coupon and broadcast hazard
+            ratio, and the welcome offer's rate factor, to 1; ``stationary`` is described in
+            :data:`EFFECTS`.
         **overrides
             Any field of :class:`Scenario`.
 
@@ -202,6 +218,19 @@ class Scenario:
         values: dict[str, Any] = {}
         if effects in ("uplift_only", "none"):
             values.update(post_promotion_dip_hr=1.0, dip_days=0, anticipation_hr=1.0, anticipation_days=0)
+        if effects in ("uplift_only", "none", "stationary"):
+            values.update(learning_full_price_per_coupon=0.0, learning_coupon_per_coupon=0.0)
+        if effects == "stationary":
+            values.update(
+                existing_share=1.0,                # no new customers: the base does not grow or age
+                cadence_days=91,                   # one campaign a quarter, on about the same dates each year
+                first_campaign_on=date(2025, 2, 3),  # (ending before the broadcast sale)
+                depths=(0.2,),                     # every campaign as deep as the last
+                uplift_recent_infrequent_hr=1.0,   # the coupon response does not depend on the history,
+                sure_thing_min_orders=10**6,       # which the export's start truncates
+                anticipation_hr=1.0,               # anticipation needs coupons received: it would grow
+                anticipation_days=0,
+            )
         if effects == "none":
             values.update(
                 uplift_base_hr=1.0,
@@ -231,6 +260,9 @@ class Scenario:
             value = getattr(self, name)
             if not value > 0:
                 raise ConfigError(f"demo scenario: {name} must be positive, found {value!r}")
+        for name in ("learning_full_price_per_coupon", "learning_coupon_per_coupon", "learning_cap"):
+            if getattr(self, name) < 0:
+                raise ConfigError(f"demo scenario: {name} must be 0 or more, found {getattr(self, name)!r}")
         for name in ("dip_days", "anticipation_days", "after_days", "pre_period_days"):
             if getattr(self, name) < 0:
                 raise ConfigError(f"demo scenario: {name} must be 0 or more, found {getattr(self, name)!r}")
@@ -253,6 +285,10 @@ class Scenario:
     @property
     def has_anticipation(self) -> bool:
         return self.anticipation_days > 0 and self.anticipation_hr != 1.0
+
+    @property
+    def has_learning(self) -> bool:
+        return self.learning_full_price_per_coupon > 0 or self.learning_coupon_per_coupon > 0
 
     @property
     def has_uplift(self) -> bool:

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .calendar import Calendar
-from .hazard import coupon_hazard_ratio, order_probability, purchase_hazard
+from .hazard import coupon_hazard_ratio, coupon_learning, full_price_learning, order_probability, purchase_hazard
 from .population import Customers
 from .scenario import Scenario
 
@@ -101,6 +101,8 @@ def simulate(
             broadcast_starts.append(BroadcastStart(broadcast_starts_on[day], dip_until.copy(), coupons.copy()))
 
         base = rate * (calendar.season[day] * calendar.broadcast_factor[day]) * (first_day <= day)
+        if scenario.has_learning:
+            base = base * full_price_learning(scenario, coupons)
         anticipating = calendar.anticipation_day[day] & (coupons >= scenario.anticipation_min_coupons) & (holding < 0)
         hazard = purchase_hazard(base, coupon_factor, anticipating, dip_until >= day, scenario)
         ordered = purchase_rng.random(n) < order_probability(hazard)
@@ -163,6 +165,8 @@ def _start_campaign(
         recency_days=recency,
         frequency=frequency,
     )
+    if scenario.has_learning:
+        ratio = ratio * coupon_learning(scenario, coupons[members])
     return CampaignStart(
         campaign=campaign,
         members=members,

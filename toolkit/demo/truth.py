@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .calendar import Calendar
-from .hazard import order_probability, purchase_hazard
+from .hazard import full_price_learning, order_probability, purchase_hazard
 from .population import Customers
 from .scenario import Scenario
 from .simulate import BroadcastStart, CampaignStart, Simulation
@@ -118,6 +118,8 @@ def campaign_potential_outcomes(
         & (coupons >= scenario.anticipation_min_coupons)[:, None]
         & ~holding
     )
+    if scenario.has_learning:  # the full-price learning factor is constant over the span (no campaign starts in it)
+        coupon_factor = coupon_factor * full_price_learning(scenario, coupons)[:, None]
     first_day = customers.first_day[members][:, None]
     result = expected_orders(
         scenario,
@@ -169,6 +171,8 @@ def broadcast_expected_orders(
             holding[np.ix_(treated, days_held)] = True
             coupon_factor[np.ix_(treated, days_held)] = campaign_start.coupon_hr[campaign_start.treated][:, None]
     anticipating = calendar.anticipation_day[day_index][None, :] & (coupons >= scenario.anticipation_min_coupons) & ~holding
+    if scenario.has_learning:
+        coupon_factor = coupon_factor * full_price_learning(scenario, coupons)
     factor = calendar.season[day_index] * (calendar.broadcast_factor[day_index] if with_sale else 1.0)
     first_day = customers.first_day[:, None]
     result = expected_orders(

@@ -26,7 +26,7 @@ import pandas as pd
 from ..errors import AnalysisError, ConfigError
 
 #: Section modules of ``toolkit.longrun``, run in this order.
-SECTIONS: tuple[str, ...] = ("dependence", "responsiveness", "drift")
+SECTIONS: tuple[str, ...] = ("dependence", "responsiveness", "drift", "cohorts", "counterfactual")
 
 _QUARTER = re.compile(r"^\s*(\d{4})\s*-?\s*Q([1-4])\s*$", re.I)
 
