@@ -85,6 +85,9 @@ class TimingSettings:
     cadence_tolerance_days: int = 2
     min_regular_share: float = 0.75
     late_period_days: int = 14
+    anticipation_min_exposed_customers: int = 100
+    anticipation_min_starts: int = 3
+    min_arm_customers: int = 30
 
 
 @dataclass(frozen=True)
