@@ -32,6 +32,8 @@ def _number(v: float) -> str:
         return f"{v:,.0f}"
     if abs(v) >= 100:
         return f"{v:,.1f}"
+    if abs(v) < 0.0001:
+        return f"{v:.2g}"
     if abs(v) < 0.001:
         return np.format_float_positional(v, precision=2, unique=False, fractional=False, trim="-")
     return f"{v:.3g}"
@@ -112,18 +114,25 @@ DESCRIPTORS = {"bin", "decile", "week", "period", "index_from", "index_to", "day
                "horizon_days", "cohort_index", "months_since", "quarters_since", "ci_level"}
 
 
+LONG_TEXT = 40
+
+
 def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60,
-                 columns: list[str] | None = None) -> tuple[list[str], list[list], int]:
+                 columns: list[str] | None = None) -> tuple[list[str], list[list], int, list]:
     """A table of unknown shape, laid out as it is: text columns as text, numbers bound as cells.
 
     Numbers in a row whose customer count (``customers``, ``n_customers``, ``n``, ``n_treated``,
     ``n_holdout``) is below k are suppressed.
     """
     count_cols = [c for c in ("customers", "n_customers", "n", "n_treated", "n_holdout", "cohort_customers",
-                              "customers_from", "customers_to") if c in frame.columns]
+                              "customers_from", "customers_to", "at_risk", "customers_at_risk") if c in frame.columns]
     shown = columns
     columns = [c for c in (shown or frame.columns) if c != "customer_id" and c in frame.columns
                and c != "is_suppressed"]
+    # long texts (a method, a note, a sentence) go under the table once, not in every row
+    long_texts = [c for c in columns if frame[c].dtype == object
+                  and frame[c].dropna().astype(str).str.len().max() > LONG_TEXT if frame[c].notna().any()]
+    columns = [c for c in columns if c not in long_texts]
     rows = []
     for i in frame.index[:max_rows]:  # labels = positions in the table as written, also in a filtered view
         small = too_few(*[frame[c].loc[i] for c in count_cols], k=k) if count_cols else False
@@ -135,7 +144,10 @@ def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60,
             if isinstance(value, (bool,)) or pd.api.types.is_bool_dtype(frame[col]):
                 out.append({"text": "yes" if value else "no"})
             elif pd.api.types.is_numeric_dtype(frame[col]):
-                kind = ("count" if col in count_cols or pd.api.types.is_integer_dtype(frame[col])
+                values = frame[col].dropna()
+                integral = len(values) > 0 and bool((values == values.round()).all()) and col not in DESCRIPTORS
+                kind = ("p" if col == "p_value" else
+                        "count" if col in count_cols or integral or pd.api.types.is_integer_dtype(frame[col])
                         else "percent" if ("share" in col or col.endswith("_rate") or "retention" in col) else "number")
                 # a row's descriptors (its bin, week, band edges) describe no customer: never suppressed
                 out.append(cell(frame, table, i, col, "number" if col in DESCRIPTORS else kind,
@@ -143,4 +155,9 @@ def generic_rows(frame: pd.DataFrame, table: str, *, k: int, max_rows: int = 60,
             else:
                 out.append({"text": "" if value is None or (isinstance(value, float) and math.isnan(value)) else str(value)})
         rows.append(out)
-    return columns, rows, len(frame)
+    texts = []
+    for col in long_texts:
+        for value in frame[col].dropna().astype(str).unique()[:3]:
+            if value.strip():
+                texts.append((col, value))
+    return columns, rows, len(frame), texts

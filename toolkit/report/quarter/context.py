@@ -333,8 +333,8 @@ def tails_section(tables, missing, k: int, alpha: float, quarter: str | None = N
     out["distribution_reason"] = _missing(tables, missing, "dependence_distribution")
     if dist is not None:
         shown = in_quarter(dist, quarter, previous) if quarter else dist
-        cols, rows, total = generic_rows(shown, "dependence_distribution", k=k)
-        out["distribution"] = {"columns": cols, "rows": rows, "total": total}
+        cols, rows, total, texts = generic_rows(shown, "dependence_distribution", k=k)
+        out["distribution"] = {"columns": cols, "rows": rows, "total": total, "texts": texts}
         out["distribution_chart"] = _distribution_chart(dist, k, quarter)
     return out
 
@@ -361,7 +361,8 @@ def _distribution_chart(dist: pd.DataFrame, k: int, quarter: str | None = None):
 # --- timing -----------------------------------------------------------------------------------------
 
 
-def timing_section(tables, missing, k: int, alpha: float, horizon_days: int = 180) -> dict:
+def timing_section(tables, missing, k: int, alpha: float, horizon_days: int = 180,
+                   quarter_ids: list[str] | None = None) -> dict:
     out = {"reason": _missing(tables, missing, "timing_effects")}
     km = tables.get("km_curves")
     out["km_reason"] = _missing(tables, missing, "km_curves")
@@ -411,26 +412,31 @@ def timing_section(tables, missing, k: int, alpha: float, horizon_days: int = 18
     out["effects"] = []
     if effects is not None and len(effects):
         rows_chart = []
-        for pos, r in effects.iterrows():
+        ids = set(quarter_ids or [])
+        shown = effects[(effects["scope"].astype(str) == "all") | effects["scope"].astype(str).isin(ids)]
+        out["effects_hidden"] = int(len(effects) - len(shown))
+        for pos, r in shown.iterrows():
             small = too_few(r["n_customers"], k=k)
             kind = "days" if r["effect"] == "gap_after_deal" else "ratio"
             out["effects"].append({
                 "effect": TIMING_LABELS.get(r["effect"], r["effect"]), "scope": str(r["scope"]), "model": r["model"],
+                "basis": r.get("basis") or "", "verdict": r.get("verdict") or "",
                 "estimate": cell(effects, "timing_effects", pos, "estimate", kind, suppress=small, k=k),
                 "ci": interval(effects, "timing_effects", pos, "ci_low", "ci_high", kind, suppress=small, k=k),
                 "n": cell(effects, "timing_effects", pos, "n_customers", "count", suppress=small, k=k),
                 "level": cell(effects, "timing_effects", pos, "ci_level", "percent0"), "note": r["note"] or "",
             })
-            if r["effect"] != "gap_after_deal" and str(r["scope"]) == "all" and not small:
+            if r["effect"] != "gap_after_deal" and str(r["scope"]) == "all" and not small and finite(r["estimate"]):
                 rows_chart.append(charts.Interval(f"{r['effect'].replace('_', ' ')} ({r['model'].replace('_', ' ')})",
                                                   r["estimate"], r["ci_low"], r["ci_high"],
                                                   colour="blue" if r["model"].startswith("discrete") else "amber",
                                                   note="not estimable"))
         n = int(effects["n_customers"].max()) if effects["n_customers"].notna().any() else 0
         out["effects_chart"] = _safe_chart(
-            charts.interval_chart, rows_chart, title="Hazard ratios of the timing effects",
-            caption=f"n = up to {n:,} customers; {_level(effects, 1 - alpha)} bootstrap intervals; 1 = no effect; log scale",
-            x_label="hazard ratio (log scale)", reference=1.0, log_scale=True) if rows_chart else None
+            charts.interval_chart, rows_chart, title="Timing effects: rate and hazard ratios, all campaigns",
+            caption=f"n = up to {n:,} customers; {_level(effects, 1 - alpha)} bootstrap intervals; 1 = no effect; log "
+                    f"scale; randomised rows compare treatment and holdout arms, the others are adjusted observational "
+                    f"comparisons", x_label="ratio (log scale)", reference=1.0, log_scale=True) if rows_chart else None
     return out
 
 
@@ -463,8 +469,8 @@ def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None =
         shown = ["quarter", "customers", "dependence_index_mean", "dependence_index_mean_ci_low",
                  "dependence_index_mean_ci_high", "dependence_index_p50", "dependence_index_p90", "full_price_share",
                  "full_price_share_ci_low", "full_price_share_ci_high", "deal_only_share", "mean_depth"]
-        cols, rows, total = generic_rows(dep, "dependence_by_quarter", k=k, columns=shown)
-        out["dependence"] = {"columns": cols, "rows": rows, "total": total}
+        cols, rows, total, texts = generic_rows(dep, "dependence_by_quarter", k=k, columns=shown + ["method"])
+        out["dependence"] = {"columns": cols, "rows": rows, "total": total, "texts": texts}
     out["tables"] = []
     for name, title in (("dependence_transitions", "Dependence transitions between quarters"),
                         ("responsiveness_drift", "Responsiveness drift"),
@@ -476,14 +482,40 @@ def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None =
             out["tables"].append({"name": name, "title": title, "reason": missing.get(name, f"{name} not produced")})
             continue
         shown = in_quarter(frame, quarter, previous) if quarter and name != "broadcast_effects" else frame
-        cols, rows, total = generic_rows(shown, name, k=k)
-        out["tables"].append({"name": name, "title": title, "columns": cols, "rows": rows, "total": total, "reason": None})
+        if "first_quarter" in shown.columns and (shown["first_quarter"].astype(str) == "all").any():
+            shown = shown[shown["first_quarter"].astype(str) == "all"]  # whole cohorts; by quarter in the Parquet file
+        cols, rows, total, texts = generic_rows(shown, name, k=k)
+        out["tables"].append({"name": name, "title": title, "columns": cols, "rows": rows, "total": total,
+                              "texts": texts, "reason": None})
+    retention = tables.get("cohort_retention")
+    out["retention_chart"] = None
+    needed = {"cohort", "day", "survival"}
+    if retention is not None and len(retention) and needed <= set(retention.columns):
+        frame = retention
+        if "first_quarter" in frame.columns:
+            frame = frame[frame["first_quarter"].astype(str) == "all"]
+        if "is_suppressed" in frame.columns:
+            frame = frame[~frame["is_suppressed"].astype(bool)]
+        series, sizes = [], []
+        for i, (cohort, curve) in enumerate(frame.groupby("cohort", sort=True)):
+            series.append(charts.Series(str(cohort).replace("_", " "), curve["day"].tolist(), curve["survival"].tolist(),
+                                        curve.get("ci_low", pd.Series([None] * len(curve))).tolist(),
+                                        curve.get("ci_high", pd.Series([None] * len(curve))).tolist(),
+                                        colour=charts.SERIES_ORDER[i % len(charts.SERIES_ORDER)], step=True))
+            if "customers" in curve.columns:
+                sizes.append(f"{int(curve['customers'].max()):,} {str(cohort).replace('_', ' ')}")
+        out["retention_chart"] = _safe_chart(
+            charts.line_chart, series, title="Cohort retention: share not yet lapsed",
+            caption=f"n = {', '.join(sizes)} customers; Kaplan-Meier with {_level(frame, 1 - alpha)} intervals",
+            x_label="days since the first order", y_label="share not lapsed", y_percent=True) if series else None
     series_table = tables.get("broadcast_series")
     out["broadcast_reason"] = _missing(tables, missing, "broadcast_series")
     out["broadcast_charts"] = []
     if series_table is not None and len(series_table):
         day_col = next((c for c in ("day_on", "ordered_on", "date", "day") if c in series_table.columns), None)
-        for pid, frame in series_table.groupby("promotion_id", sort=False) if "promotion_id" in series_table.columns else []:
+        keys = [c for c in ("promotion_id", "outcome") if c in series_table.columns]
+        for key, frame in series_table.groupby(keys, sort=False) if keys else []:
+            pid = key[0] if isinstance(key, tuple) else key
             if day_col is None:
                 break
             days = pd.to_datetime(frame[day_col])
@@ -494,7 +526,8 @@ def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None =
                                     frame.get("ci_high", pd.Series([None] * len(frame))).tolist(), colour="amber",
                                     dash="6 3")]
             out["broadcast_charts"].append(_safe_chart(
-                charts.line_chart, series, title=f"Broadcast sale {pid}: actual vs counterfactual",
+                charts.line_chart, series, title=f"Broadcast sale {pid}: actual vs counterfactual"
+                + (f" ({str(frame['outcome'].iloc[0]).replace('_', ' ')})" if "outcome" in frame.columns else ""),
                 caption=f"daily series from {days.min().date()}; counterfactual with {_level(frame, 1 - alpha)} interval; "
                         f"n = {len(frame):,} days", x_label=f"days from {days.min().date()}",
                 y_label=str(frame["outcome"].iloc[0]).replace("_", " ") if "outcome" in frame.columns else "orders"))

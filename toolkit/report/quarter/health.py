@@ -66,10 +66,10 @@ DEPENDENCE = (
               "more customers buy only when there is a deal", "fewer customers buy only when there is a deal"),
 )
 TIMING = (
-    Indicator("anticipation", "Anticipation hazard ratio (buying before an expected campaign)", "hazard_ratio", "down",
+    Indicator("anticipation", "Anticipation ratio (buying just before an expected campaign)", "hazard_ratio", "down",
               "timing_effects", "customers hold off less before an expected campaign",
               "customers hold off more before an expected campaign"),
-    Indicator("post_promotion_dip", "Post-promotion dip hazard ratio", "hazard_ratio", "down", "timing_effects",
+    Indicator("post_promotion_dip", "Post-promotion dip (order rate ratio after a deal)", "hazard_ratio", "down", "timing_effects",
               "buying recovers faster after a deal", "buying after a deal falls further (more pull-forward)"),
 )
 
@@ -177,10 +177,35 @@ def _pooled_log(rows: pd.DataFrame, z: float) -> tuple[float, float, float, int]
     return math.exp(est), math.exp(est - z * s), math.exp(est + z * s), n
 
 
+def _in_scope(scope, ids: list[str], quarter: str | None) -> bool:
+    """A per-campaign row of the quarter: its scope names one of the quarter's promotions, or a
+    start day inside the quarter (anticipation rows per expected start)."""
+    text = str(scope)
+    if text in ids:
+        return True
+    if quarter is None:
+        return False
+    try:
+        day = pd.Timestamp(text)
+    except (ValueError, TypeError):
+        return False
+    from .period import Quarter
+
+    q = Quarter.parse(quarter)
+    return q.first_day <= day.date() <= q.last_day
+
+
+def _model_order(effect: pd.DataFrame, preferred: str) -> list[str]:
+    """Models to read an effect from: randomised contrasts first, then the preferred model, then the rest."""
+    models = effect["model"].dropna().unique().tolist()
+    basis = effect.groupby("model")["basis"].first().to_dict() if "basis" in effect.columns else {}
+    return sorted(models, key=lambda m: (basis.get(m) != "randomised", m != preferred, m))
+
+
 def timing_indicators(table: pd.DataFrame | None, quarter: str, previous: str, missing: str | None, *,
                       quarter_ids: list[str], previous_ids: list[str], level: float, model: str) -> list[dict]:
     """Anticipation and dip: per-campaign rows of the quarter pooled against the previous quarter's
-    when the timing table has them; otherwise the whole-export estimate's level."""
+    when the timing table has them (randomised rows first); otherwise the whole-export level."""
     from scipy import stats
 
     z = float(stats.norm.ppf(0.5 + level / 2))
@@ -190,73 +215,103 @@ def timing_indicators(table: pd.DataFrame | None, quarter: str, previous: str, m
             rows.append(_unavailable(ind, quarter, missing or "timing_effects not produced"))
             continue
         effect = table[table["effect"] == ind.name]
-        models = effect["model"].unique().tolist()
-        use = model if model in models else (models[0] if models else None)
-        effect = effect[effect["model"] == use]
-        per_campaign = effect[effect["scope"].astype(str).isin(quarter_ids)]
-        if len(per_campaign):
+        if "is_primary" in effect.columns and effect["is_primary"].astype("boolean").fillna(False).any():
+            effect = effect[effect["is_primary"].astype("boolean").fillna(False).astype(bool)]
+        done = False
+        for use in _model_order(effect, model):
+            rows_m = effect[(effect["model"] == use) & effect["estimate"].notna()]
+            per_campaign = rows_m[[_in_scope(s, quarter_ids, quarter) for s in rows_m["scope"]]]
+            if per_campaign.empty:
+                continue
             value, low, high, n = _pooled_log(per_campaign, z)
-            prev_rows = effect[effect["scope"].astype(str).isin(previous_ids)]
+            prev_rows = rows_m[[_in_scope(s, previous_ids, previous) for s in rows_m["scope"]]]
             p, pl, ph, _ = _pooled_log(prev_rows, z) if len(prev_rows) else (math.nan,) * 3 + (0,)
             change, cl, ch = _change(value, low, high, p, pl, ph, log=True)
-            basis = f"for {quarter}'s campaigns against {previous}'s" if pd.notna(p) else f"no campaigns in {previous}"
+            basis = (f"for {quarter}'s campaigns against {previous}'s" if pd.notna(p)
+                     else f"no comparable rows for {previous}")
             assessment = _assess(ind, change, cl, ch, null=1.0)
             direction = "up" if pd.notna(change) and change > 1 else "down"
             rows.append(_row(ind, quarter, value=value, ci_low=low, ci_high=high, previous_quarter=previous,
                              previous_value=p, previous_ci_low=pl, previous_ci_high=ph, change=change,
                              change_ci_low=cl, change_ci_high=ch, ci_level=level, n=n, n_label="customers",
                              assessment=assessment, sentence=_sentence(ind, assessment, direction, basis),
-                             reason=f"model {use}; change is a ratio of hazard ratios"))
+                             reason=f"model {use}, {len(per_campaign)} row(s) pooled; change is a ratio of ratios"))
+            done = True
+            break
+        if done:
             continue
-        overall = effect[effect["scope"].astype(str) == "all"]
-        if overall.empty or overall["estimate"].isna().all():
-            note = overall["note"].iloc[0] if len(overall) and "note" in overall.columns else "no estimate"
-            rows.append(_unavailable(ind, quarter, f"not estimable: {note}"))
-            continue
-        r = overall.iloc[0]
-        assessment = _assess(ind, r["estimate"], r["ci_low"], r["ci_high"], null=1.0)
-        # a level is not a movement: it can make the call "watch", never "act"
-        assessment = {"adverse": "harmful level", "favourable": "favourable level"}.get(assessment, assessment)
-        direction = "up" if r["estimate"] > 1 else "down"
-        basis = "over the whole export (no quarterly series: the level against no effect, not a change)"
-        rows.append(_row(ind, quarter, value=r["estimate"], ci_low=r["ci_low"], ci_high=r["ci_high"],
-                         ci_level=r.get("ci_level", level), n=r.get("n_customers"), n_label="customers",
-                         assessment=assessment, sentence=_sentence(ind, assessment, direction, basis),
-                         reason=f"model {use}; level, not change"))
+        for use in _model_order(effect, model):
+            overall = effect[(effect["model"] == use) & (effect["scope"].astype(str) == "all")]
+            if overall.empty or overall["estimate"].isna().all():
+                continue
+            r = overall.iloc[0]
+            assessment = _assess(ind, r["estimate"], r["ci_low"], r["ci_high"], null=1.0)
+            # a level is not a movement: it can make the call "watch", never "act"
+            assessment = {"adverse": "harmful level", "favourable": "favourable level"}.get(assessment, assessment)
+            direction = "up" if r["estimate"] > 1 else "down"
+            basis = "over the whole export (no quarterly series: the level against no effect, not a change)"
+            rows.append(_row(ind, quarter, value=r["estimate"], ci_low=r["ci_low"], ci_high=r["ci_high"],
+                             ci_level=r.get("ci_level", level), n=r.get("n_customers"), n_label="customers",
+                             assessment=assessment, sentence=_sentence(ind, assessment, direction, basis),
+                             reason=f"model {use}; level, not change"))
+            done = True
+            break
+        if not done:
+            notes = effect["note"].dropna() if "note" in effect.columns else pd.Series([], dtype=object)
+            rows.append(_unavailable(ind, quarter, f"not estimable: {notes.iloc[0] if len(notes) else 'no estimate'}"))
     return rows
 
 
-RESPONSIVENESS = Indicator("responsiveness_drift", "Responsiveness to deals, drift", "slope", "up",
-                           "responsiveness_drift", "customers respond more to deals over time",
-                           "customers respond less to deals over time")
+# Responsiveness drift: terms of the long-run fixed-effects model (toolkit.longrun.responsiveness).
+RESPONSIVENESS = (
+    (Indicator("responsiveness_drift", "Responsiveness to coupons, drift with coupons received", "slope", "up",
+               "responsiveness_drift", "customers respond more to a coupon the more coupons they have had",
+               "customers respond less to a coupon the more coupons they have had"),
+     "coupon_available_x_coupons_before"),
+    (Indicator("full_price_drift", "Buying without a coupon, drift with coupons received", "slope", "down",
+               "responsiveness_drift", "customers buy more without a coupon the more coupons they have had",
+               "customers buy less without a coupon the more coupons they have had"),
+     "coupons_before"),
+)
 POPULATION = Indicator("population_drift", "Population drift (who the customers are)", "drift", "up",
                        "population_drift", "the customer base is shifting", "the customer base is settling")
 
 
+def _drift_row(ind: Indicator, frame: pd.DataFrame, quarter: str, level: float, basis: str) -> dict:
+    r = frame.iloc[0]
+    low, high = r.get("ci_low", math.nan), r.get("ci_high", math.nan)
+    assessment = _assess(ind, r["estimate"], low, high, null=0.0)
+    direction = "up" if r["estimate"] > 0 else "down"
+    term = r.get("term", r.get("measure", ""))
+    n = r.get("n_customers", r.get("customers"))
+    return _row(ind, quarter, value=r["estimate"], ci_low=low, ci_high=high, ci_level=r.get("ci_level", level), n=n,
+                n_label="customers", assessment=assessment, sentence=_sentence(ind, assessment, direction, basis),
+                reason=f"{ind.source}: {term}" if term else ind.source)
+
+
 def drift_indicators(tables: dict, missing: dict, quarter: str, level: float) -> list[dict]:
-    """Responsiveness drift and population drift: their estimate's interval against no drift."""
+    """Responsiveness drift (its slopes against no drift) and population drift."""
     rows = []
-    for ind in (RESPONSIVENESS, POPULATION):
-        table = tables.get(ind.source)
+    table = tables.get("responsiveness_drift")
+    for ind, term in RESPONSIVENESS:
         if table is None:
             rows.append(_unavailable(ind, quarter, missing.get(ind.source, f"{ind.source} not produced")))
             continue
-        if table.empty or "estimate" not in table.columns:
-            rows.append(_unavailable(ind, quarter, f"{ind.source} has no estimate rows"))
+        frame = table[table["term"].astype(str) == term] if "term" in table.columns else table
+        if frame.empty or "estimate" not in frame.columns or frame["estimate"].isna().all():
+            rows.append(_unavailable(ind, quarter, f"{ind.source} has no estimate for {term}"))
             continue
+        rows.append(_drift_row(ind, frame, quarter, level, "over the data through the quarter (a slope: 0 = no drift)"))
+    table = tables.get("population_drift")
+    if table is None:
+        rows.append(_unavailable(POPULATION, quarter, missing.get("population_drift", "population_drift not produced")))
+    elif table.empty or "estimate" not in table.columns:
+        rows.append(_unavailable(POPULATION, quarter, "population_drift has no estimate rows"))
+    else:
         frame = table
         if "quarter" in frame.columns and (frame["quarter"].astype(str) == quarter).any():
             frame = frame[frame["quarter"].astype(str) == quarter]
-        r = frame.iloc[0]
-        low, high = r.get("ci_low", math.nan), r.get("ci_high", math.nan)
-        assessment = _assess(ind, r["estimate"], low, high, null=0.0)
-        direction = "up" if r["estimate"] > 0 else "down"
-        term = r.get("term", r.get("measure", ""))
-        n = r.get("n_customers", r.get("customers"))
-        rows.append(_row(ind, quarter, value=r["estimate"], ci_low=low, ci_high=high, ci_level=level, n=n,
-                         n_label="customers", assessment=assessment,
-                         sentence=_sentence(ind, assessment, direction, "through the quarter (against no drift)"),
-                         reason=f"{ind.source}: {term}" if term else ind.source))
+        rows.append(_drift_row(POPULATION, frame, quarter, level, "through the quarter (against no drift)"))
     return rows
 
 

@@ -41,6 +41,8 @@ def build_context(tables: dict, missing: dict, notes: list, settings, facts: dic
     currency = settings.economics.currency
     quarter = facts["quarter"]
     previous = Quarter.parse(quarter).previous().label
+    campaigns = tables.get("quarter_campaigns")
+    quarter_ids = campaigns["promotion_id"].astype(str).tolist() if campaigns is not None else []
     return {
         "title": f"Promotion health report, {quarter}",
         "quarter": quarter, "facts": facts, "currency": currency, "k": k,
@@ -50,7 +52,8 @@ def build_context(tables: dict, missing: dict, notes: list, settings, facts: dic
         "verdict": ctx.verdict_section(tables, missing, k, currency, alpha),
         "campaigns": ctx.campaign_sections(tables, missing, k, currency, alpha),
         "tails": ctx.tails_section(tables, missing, k, alpha, quarter, previous),
-        "timing": ctx.timing_section(tables, missing, k, alpha, horizon_days=2 * settings.timing.horizon_days),
+        "timing": ctx.timing_section(tables, missing, k, alpha, horizon_days=2 * settings.timing.horizon_days,
+                                     quarter_ids=quarter_ids),
         "longrun": ctx.longrun_section(tables, missing, k, alpha, quarter, previous),
         "quality": ctx.quality_section(tables, missing, notes, k),
         "methods": methods_context(settings),
