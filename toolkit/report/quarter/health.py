@@ -277,11 +277,12 @@ POPULATION = Indicator("population_drift", "Population drift (who the customers 
                        "population_drift", "the customer base is shifting", "the customer base is settling")
 
 
-def _drift_row(ind: Indicator, frame: pd.DataFrame, quarter: str, level: float, basis: str) -> dict:
+def _drift_row(ind: Indicator, frame: pd.DataFrame, quarter: str, level: float, basis: str,
+               null: float = 0.0) -> dict:
     r = frame.iloc[0]
     low, high = r.get("ci_low", math.nan), r.get("ci_high", math.nan)
-    assessment = _assess(ind, r["estimate"], low, high, null=0.0)
-    direction = "up" if r["estimate"] > 0 else "down"
+    assessment = _assess(ind, r["estimate"], low, high, null=null)
+    direction = "up" if r["estimate"] > null else "down"
     term = r.get("term", r.get("measure", ""))
     n = r.get("n_customers", r.get("customers"))
     return _row(ind, quarter, value=r["estimate"], ci_low=low, ci_high=high, ci_level=r.get("ci_level", level), n=n,
@@ -305,13 +306,21 @@ def drift_indicators(tables: dict, missing: dict, quarter: str, level: float) ->
     table = tables.get("population_drift")
     if table is None:
         rows.append(_unavailable(POPULATION, quarter, missing.get("population_drift", "population_drift not produced")))
-    elif table.empty or "estimate" not in table.columns:
+    elif table.empty or not ({"estimate", "auc"} & set(table.columns)):
         rows.append(_unavailable(POPULATION, quarter, "population_drift has no estimate rows"))
     else:
         frame = table
-        if "quarter" in frame.columns and (frame["quarter"].astype(str) == quarter).any():
-            frame = frame[frame["quarter"].astype(str) == quarter]
-        rows.append(_drift_row(POPULATION, frame, quarter, level, "through the quarter (against no drift)"))
+        for col in ("quarter_to", "quarter"):
+            if col in frame.columns and (frame[col].astype(str) == quarter).any():
+                frame = frame[frame[col].astype(str) == quarter]
+                break
+        if "auc" in frame.columns and "estimate" not in frame.columns:
+            frame = frame.rename(columns={"auc": "estimate", "auc_ci_low": "ci_low", "auc_ci_high": "ci_high"})
+        text = " ".join(str(frame.iloc[0].get(c, "")) for c in ("measure", "term", "method", "metric")).lower()
+        # a classifier telling the quarters apart: an AUC of 0.5 means no drift
+        null = 0.5 if "auc" in text or "auc" in table.columns else 0.0
+        rows.append(_drift_row(POPULATION, frame, quarter, level,
+                               "through the quarter (against no drift" + (": AUC 0.5)" if null else ")"), null=null))
     return rows
 
 
