@@ -45,10 +45,11 @@ def _stand_in_longrun():
                         "full_price_share_ci_low": [0.68, 0.58], "full_price_share_ci_high": [0.72, 0.62],
                         "deal_only_share": [0.1, 0.1], "deal_only_share_ci_low": [0.09, 0.09],
                         "deal_only_share_ci_high": [0.11, 0.11], "ci_level": [0.95, 0.95]})
-    drift = pd.DataFrame({"term": ["coupon_response_per_quarter"], "estimate": [0.05], "ci_low": [0.01],
-                          "ci_high": [0.09], "n_customers": [700], "n_weeks": [80], "method": ["fixed effects"]})
-    population = pd.DataFrame({"quarter": ["2026Q3"], "measure": ["psi"], "estimate": [0.02], "ci_low": [-0.01],
-                               "ci_high": [0.05], "customers": [820]})
+    drift = pd.DataFrame({"term": ["coupon_available_x_coupons_before", "coupons_before"], "estimate": [0.05, -0.001],
+                          "ci_low": [0.01, -0.003], "ci_high": [0.09, 0.001], "n_customers": [700, 700],
+                          "n_weeks": [80, 80], "method": ["fixed effects", "fixed effects"]})
+    population = pd.DataFrame({"quarter_from": ["2026Q2"], "quarter_to": ["2026Q3"], "auc": [0.52],
+                               "auc_ci_low": [0.49], "auc_ci_high": [0.55], "customers": [820]})
     retention = pd.DataFrame({"cohort": ["2025Q1", "2025Q2"], "quarters_since": [1, 1], "customers": [3, 400],
                               "retention": [0.33, 0.61]})
     series = pd.DataFrame({"promotion_id": ["FW-B01"] * 3, "outcome": ["orders"] * 3,
@@ -69,8 +70,9 @@ def test_long_run_sections_filled_when_their_tables_exist(demo_report, quick_set
     assert indicators.loc["dependence_index_mean", "assessment"] == "adverse"      # 0.20 -> 0.30, clear of zero
     assert indicators.loc["full_price_share", "assessment"] == "adverse"           # 0.70 -> 0.60
     assert indicators.loc["responsiveness_drift", "assessment"] == "adverse"       # interval above zero
-    assert indicators.loc["population_drift", "assessment"] == "within noise"
-    assert tables["health_verdict"]["call"].iloc[0] == "act"                       # three adverse >= 2
+    assert indicators.loc["full_price_drift", "assessment"] == "within noise"
+    assert indicators.loc["population_drift", "assessment"] == "within noise"      # AUC 0.52 (0.49 to 0.55) vs 0.5
+    assert tables["health_verdict"]["call"].iloc[0] == "act"                       # three or more adverse >= 2
     page = html_parse.read(html)
     bound = {(n["data-table"], n["data-column"]) for n in page.numbers}
     assert ("dependence_by_quarter", "dependence_index_mean") in bound
