@@ -57,16 +57,24 @@ class QuarterReport:
     inputs: QuarterInputs | None = None
 
 
-def ensure_built(settings, progress=None):
-    """Build the panels when stale (shared entry point when the workspace module has one)."""
-    from ... import workspace
+def ensure_built(settings, console=None):
+    """Build the panels first when they are missing or stale.
 
-    shared = getattr(workspace, "ensure_built", None)
+    Uses the shared entry point ``toolkit.ensure.ensure_built`` when this build has it (it also
+    reports failed builds and the last good panels); otherwise the build itself, which skips when
+    nothing changed.
+    """
+    import importlib
+
+    try:
+        shared = importlib.import_module("toolkit.ensure").ensure_built
+    except (ImportError, AttributeError):
+        shared = None
     if shared is not None:
-        return shared(settings)
+        return shared(settings, console)
     from ... import panels
 
-    return panels.build(settings, force=False, progress=progress)
+    return panels.build(settings, force=False)
 
 
 def _check_out(out: Path) -> None:
@@ -181,7 +189,7 @@ def _swap_into_place(staging: Path, out: Path) -> None:
 
 
 def build_quarter_report(settings, quarter_text: str, out: str | Path, *, pdf: bool = False, fit_cox: bool = True,
-                         progress=None) -> QuarterReport:
+                         progress=None, console=None) -> QuarterReport:
     """Run the quarter's analyses and write its report folder.
 
     Parameters
@@ -219,7 +227,7 @@ def build_quarter_report(settings, quarter_text: str, out: str | Path, *, pdf: b
     seconds: dict[str, float] = {}
     clock = time.perf_counter()
     say("checking and building the panels (skipped when up to date)")
-    ensure_built(settings)
+    ensure_built(settings, console)
     seconds["build"] = round(time.perf_counter() - clock, 2)
     con = workspace.connect(settings)
     try:
@@ -241,7 +249,8 @@ def build_quarter_report(settings, quarter_text: str, out: str | Path, *, pdf: b
         "quarter": quarter.label, "quarter_first_day": str(quarter.first_day), "quarter_last_day": str(quarter.last_day),
         "export_first_day": str(first_day), "export_last_day": str(last_day), "tool_version": __version__,
         "config": str(settings.config_path), "fingerprints": fingerprints,
-        "seeds": {"campaign": settings.campaign.seed, "timing": settings.timing.seed},
+        "seeds": {"campaign": settings.campaign.seed, "timing": settings.timing.seed,
+                  **({"longrun": settings.longrun.seed} if hasattr(getattr(settings, "longrun", None), "seed") else {})},
         "generated_at": started_at.strftime("%Y-%m-%d %H:%M UTC"),
         "analysis_seconds": round(time.perf_counter() - started, 1),
         "missing": dict(sorted(inputs.missing.items())),

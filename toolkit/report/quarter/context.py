@@ -520,6 +520,12 @@ def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None =
                 break
             days = pd.to_datetime(frame[day_col])
             x = ((days - days.min()).dt.days).tolist()
+            marks = []
+            if "period" in frame.columns:
+                for period, label in (("during", "sale"), ("after", "after")):
+                    first = frame.index[frame["period"].astype(str) == period]
+                    if len(first):
+                        marks.append((x[frame.index.get_loc(first[0])], label))
             series = [charts.Series("actual", x, frame["actual"].tolist(), colour="blue"),
                       charts.Series("counterfactual", x, frame["counterfactual"].tolist(),
                                     frame.get("ci_low", pd.Series([None] * len(frame))).tolist(),
@@ -529,7 +535,7 @@ def longrun_section(tables, missing, k: int, alpha: float, quarter: str | None =
                 charts.line_chart, series, title=f"Broadcast sale {pid}: actual vs counterfactual"
                 + (f" ({str(frame['outcome'].iloc[0]).replace('_', ' ')})" if "outcome" in frame.columns else ""),
                 caption=f"daily series from {days.min().date()}; counterfactual with {_level(frame, 1 - alpha)} interval; "
-                        f"n = {len(frame):,} days", x_label=f"days from {days.min().date()}",
+                        f"n = {len(frame):,} days", x_label=f"days from {days.min().date()}", vlines=marks,
                 y_label=str(frame["outcome"].iloc[0]).replace("_", " ") if "outcome" in frame.columns else "orders"))
     return out
 
