@@ -33,7 +33,8 @@ def run_command(args) -> int:
     out = Path(args.out) if args.out else Path("reports") / f"quarter-{label}"
     with console.status(f"quarterly report {escape(str(args.quarter))}…") as status:
         result = build_quarter_report(settings, args.quarter, out, pdf=args.pdf, fit_cox=not args.no_cox,
-                                      progress=lambda text: status.update(f"quarter: {escape(text)}"))
+                                      progress=lambda text: status.update(f"quarter: {escape(text)}"),
+                                      console=console)
     console.print(f"quarter {result.quarter}: call [bold]{result.call}[/]; "
                   f"{len(result.tables)} tables, report.html{' and report.pdf' if 'report.pdf' in result.files else ''} "
                   f"in [bold]{escape(str(result.out))}[/] ({result.seconds.get('total', 0):.1f} s)")
