@@ -114,3 +114,22 @@ def test_a_segment_of_three_customers_is_suppressed(demo_report, quick_settings)
     suppressed = [s for s in page.suppressed if s.get("data-suppressed")]
     assert len(suppressed) >= 5
     assert all(s["data-suppressed"] == "fewer than 10 customers" for s in suppressed)
+
+
+def test_a_broadcast_sale_of_the_quarter_gets_a_card_with_its_counterfactual(demo_report, quick_settings):
+    inputs = copy.deepcopy(demo_report.inputs)
+    if "broadcast_effects" not in inputs.tables:
+        pytest.skip("this build has no broadcast analysis: " + inputs.missing.get("broadcast_effects", ""))
+    sale = inputs.promotions.iloc[[0]].copy()
+    sale["promotion_id"], sale["audience"], sale["name"] = "FW-B01", "broadcast", "Autumn clearance"
+    inputs.promotions = pd.concat([inputs.promotions, sale], ignore_index=True)
+    tables, html = _render(quick_settings, inputs)
+    campaigns = tables["quarter_campaigns"].set_index("promotion_id")
+    assert campaigns.loc["FW-B01", "status"].startswith("broadcast sale")
+    card = html.split("Autumn clearance", 1)[1].split("</article>", 1)[0]
+    rows = {int(n["data-row"]) for n in html_parse.read(card).numbers if n["data-table"] == "broadcast_effects"}
+    effects = tables["broadcast_effects"]
+    assert rows == set(effects.index[effects["promotion_id"] == "FW-B01"])
+    economics = tables["quarter_economics"].set_index("item")
+    total = effects[(effects["promotion_id"] == "FW-B01") & (effects["window"] == "total") & (effects["outcome"] == "orders")]
+    assert economics.loc["broadcast_incremental_orders", "estimate"] == pytest.approx(total["estimate"].iloc[0])

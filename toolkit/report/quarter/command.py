@@ -25,11 +25,15 @@ def run_command(args) -> int:
 
     from ... import config
     from ...console import console
+    from ...errors import ConfigError
     from .api import build_quarter_report
     from .period import Quarter
 
     settings = config.load(args.config)
-    label = Quarter.parse(args.quarter).label if args.out is None else args.quarter
+    try:
+        label = Quarter.parse(args.quarter).label
+    except ConfigError:
+        label = "unknown"  # build_quarter_report says why, with the quarters present, before writing anything
     out = Path(args.out) if args.out else Path("reports") / f"quarter-{label}"
     with console.status(f"quarterly report {escape(str(args.quarter))}…") as status:
         result = build_quarter_report(settings, args.quarter, out, pdf=args.pdf, fit_cox=not args.no_cox,

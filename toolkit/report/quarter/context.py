@@ -160,6 +160,16 @@ def campaign_sections(tables, missing, k: int, currency: str, alpha: float) -> d
                 "n_holdout": cell(campaigns, "quarter_campaigns", ci, "n_holdout", "count"),
                 "analysed": c["status"] == "analysed"}
         if not card["analysed"]:
+            broadcast = tables.get("broadcast_effects")
+            b = _rows_of(broadcast, pid)
+            card["broadcast"] = [{
+                "outcome": str(r["outcome"]).replace("_", " "), "window": WINDOW_LABELS.get(r["window"], r["window"]),
+                "actual": cell(broadcast, "broadcast_effects", pos, "actual", "whole"),
+                "counterfactual": cell(broadcast, "broadcast_effects", pos, "counterfactual", "whole"),
+                "estimate": cell(broadcast, "broadcast_effects", pos, "estimate", "whole"),
+                "ci": interval(broadcast, "broadcast_effects", pos, "ci_low", "ci_high", "whole"),
+                "level": cell(broadcast, "broadcast_effects", pos, "ci_level", "percent0"),
+            } for pos, r in b.iterrows()] if len(b) else []
             cards.append(card)
             continue
         e = _rows_of(effects, pid)
