@@ -102,17 +102,20 @@ class LongrunSettings:
     dependent_threshold: float = 0.5
     responsiveness_sample_customers: int = 20000
     coupons_cap: int = 20
-    drift_sample_customers: int = 20000
+    drift_sample_customers: int = 5000
     drift_folds: int = 5
-    drift_permutation_repeats: int = 5
+    drift_permutation_repeats: int = 3
+    drift_adjacent: bool = True
     min_cohort_customers: int = 50
     cohort_burn_in_days: int = 90
     lapse_days: int = 180
     retention_step_days: int = 30
+    cohort_sample_customers: int = 50000
     broadcast_pre_days: int = 365
     broadcast_min_pre_days: int = 28
     broadcast_mask_after_days: int = 14
     broadcast_mask_before_days: int = 7
+    broadcast_parameter_draws: int = 100
 
 
 # Settings that take one of a few words.

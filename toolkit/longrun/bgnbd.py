@@ -164,6 +164,7 @@ class BetaGeometricNBD(FittedMixin):
         self.params_ = pd.Series(np.exp(theta), index=list(PARAMETERS), name="estimate")
         self.log_likelihood_ = float((ws * _log_likelihood_terms(theta, xs, txs, Ts)).sum())
         hessian = _numerical_hessian(negative_log_posterior, theta)
+        self.hessian_ = hessian
         try:
             self.covariance_ = np.linalg.inv(hessian)
         except np.linalg.LinAlgError:
@@ -215,17 +216,22 @@ class BetaGeometricNBD(FittedMixin):
         x = np.asarray(frequency, dtype=float)
         return 1.0 / self._alive_denominator(x, np.asarray(recency, float), np.asarray(age, float), r, alpha, a, b)
 
-    def sample_params(self, rounds: int, *, seed: int) -> np.ndarray:
-        """Parameter draws (rounds x 4) from the asymptotic normal of the log-parameters."""
+    def scores(self, *, frequency, recency, age) -> np.ndarray:
+        """Each summary's gradient of its log-likelihood in the log-parameters (n x 4), at the fit.
+
+        Central differences of the per-customer terms; the one-step bootstrap in
+        :class:`toolkit.longrun.cohorts.CohortValue` sums them per resampled block.
+        """
         self._check_fitted()
-        rng = np.random.default_rng(seed)
-        if not np.all(np.isfinite(self.covariance_)):
-            return np.repeat(self.params_.to_numpy()[None, :], rounds, axis=0)
-        cov = (self.covariance_ + self.covariance_.T) / 2
-        values, vectors = np.linalg.eigh(cov)
-        cov = (vectors * np.clip(values, 0, None)) @ vectors.T  # numerical noise below 0 -> 0
-        draws = rng.multivariate_normal(self.log_params_, cov, size=rounds, method="eigh")
-        return np.exp(np.clip(draws, -12.0, 12.0))  # the optimiser's bounds
+        x, t_x, T = (np.asarray(v, dtype=float) for v in (frequency, recency, age))
+        out = np.empty((len(x), 4))
+        step = 1e-5
+        for j in range(4):
+            shift = np.zeros(4)
+            shift[j] = step
+            out[:, j] = (_log_likelihood_terms(self.log_params_ + shift, x, t_x, T)
+                         - _log_likelihood_terms(self.log_params_ - shift, x, t_x, T)) / (2 * step)
+        return out
 
     def _params(self, params):
         if params is not None:

@@ -19,9 +19,12 @@ window are left out of the sums (and said so).
 
 Intervals: the forecast of a sum of days is correlated across days (the level is shared), so the
 variance of each cumulative sum is the sum of the full forecast covariance matrix of those days,
-computed from the state-space matrices (:func:`forecast_covariance`): forecast uncertainty of the
-level and the observation noise, given the fitted variances (their own uncertainty is not
-propagated, so the interval is somewhat narrow on a short pre-period).
+computed from the state-space matrices (:func:`forecast_covariance`). The model's variances are
+themselves uncertain (on a short pre-period the level variance is often estimated near zero,
+which would make the forecast far too sure of itself): ``broadcast_parameter_draws`` draws of
+them from the asymptotic normal of their estimates each refilter the pre-period and draw the
+window sums from their own forecast; the interval is the percentile interval of those draws.
+Their calibration on simulated series is measured in ``bench/broadcast_calibration.py``.
 
 Placebo: the same model on a fake sale of the same length, on the latest stretch of unmasked days
 before the sale (fitted on the days before it): its interval should include zero. When it does
@@ -62,36 +65,55 @@ ASSUMPTIONS = (
     "the pre-period represents the baseline: a local level and a fixed weekly pattern; patterns longer than a week "
     "that the pre-period does not show (a holiday peak) are not modelled",
     "the relation to the control series, when there are any, is the same during and after the sale as before it",
-    "intervals are forecast intervals given the fitted variances; their own uncertainty is not propagated",
+    "intervals are forecast intervals that also draw the model's variances from their estimates' asymptotic "
+    "distribution; on simulated series they cover somewhat less often than their level says "
+    "(bench/broadcast_calibration.md)",
 )
 
 
-def forecast_covariance(results, steps: int) -> np.ndarray:
-    """Covariance matrix (steps x steps) of the next ``steps`` observations of a fitted state-space model.
+def _matrices(filtered):
+    """Time-invariant system matrices of a Kalman filter output (statsmodels ``FilterResults``)."""
+    return (np.asarray(filtered.transition[:, :, 0]), np.asarray(filtered.selection[:, :, 0]),
+            np.asarray(filtered.state_cov[:, :, 0]), np.asarray(filtered.design[:, :, 0]),
+            float(np.asarray(filtered.obs_cov[:, :, 0])[0, 0]))
 
-    With the predicted state covariance ``P`` of the first forecast step, transition ``T``,
-    selection ``R``, state noise ``Q``, design ``Z`` and observation noise ``H`` (all
-    time-invariant): ``V_1 = P``, ``V_(i+1) = T V_i T' + R Q R'``, and for ``j >= i``
-    ``Cov(y_j, y_i) = Z T^(j-i) V_i Z'`` (plus ``H`` on the diagonal). The diagonal equals
-    statsmodels' own forecast variances (a test checks it).
+
+def forecast_covariance(filtered, steps: int) -> np.ndarray:
+    """Covariance matrix (steps x steps) of the next ``steps`` observations of a filtered state-space model.
+
+    ``filtered`` is statsmodels' Kalman filter output (``results.filter_results``, or
+    ``model.filter(params, return_ssm=True)``). With the predicted state covariance ``P`` of the
+    first forecast step, transition ``T``, selection ``R``, state noise ``Q``, design ``Z`` and
+    observation noise ``H`` (all time-invariant): ``V_1 = P``, ``V_(i+1) = T V_i T' + R Q R'``,
+    and for ``j >= i`` ``Cov(y_j, y_i) = Z T^(j-i) V_i Z'`` (plus ``H`` on the diagonal). The
+    diagonal equals statsmodels' own forecast variances (a test checks it).
     """
-    fr = results.filter_results
-    T = np.asarray(fr.transition[:, :, 0])
-    R = np.asarray(fr.selection[:, :, 0])
-    Q = np.asarray(fr.state_cov[:, :, 0])
-    Z = np.asarray(fr.design[:, :, 0])
-    H = float(np.asarray(fr.obs_cov[:, :, 0])[0, 0])
-    V = np.asarray(results.predicted_state_cov[:, :, -1])
+    T, R, Q, Z, H = _matrices(filtered)
+    V = np.asarray(filtered.predicted_state_cov[:, :, -1])
     noise = R @ Q @ R.T
+    powers = np.empty((steps, T.shape[0]))  # row k: Z T^k
+    row = Z[0]
+    for k in range(steps):
+        powers[k] = row
+        row = row @ T
     cov = np.zeros((steps, steps))
     for i in range(steps):
-        propagated = V  # T^(j-i) V_i, starting at j = i
-        for j in range(i, steps):
-            value = float((Z @ propagated @ Z.T)[0, 0])
-            cov[j, i] = cov[i, j] = value
-            propagated = T @ propagated
+        column = powers[: steps - i] @ (V @ Z[0])  # Cov(y_j, y_i), j = i..steps-1
+        cov[i:, i] = column
+        cov[i, i:] = column
         V = T @ V @ T.T + noise
     return cov + H * np.eye(steps)
+
+
+def forecast_mean(filtered, steps: int, intercepts: np.ndarray | None = None) -> np.ndarray:
+    """Expected next ``steps`` observations: ``Z T^(j-1) a_1`` plus the regression part, if any."""
+    T, _, _, Z, _ = _matrices(filtered)
+    state = np.asarray(filtered.predicted_state[:, -1])
+    out = np.empty(steps)
+    for j in range(steps):
+        out[j] = float(Z[0] @ state)
+        state = T @ state
+    return out if intercepts is None else out + intercepts
 
 
 class BroadcastCounterfactual(FittedMixin):
@@ -104,6 +126,13 @@ class BroadcastCounterfactual(FittedMixin):
     min_pre_days : int, default=28
         Fewest unmasked days before the sale needed to fit (four weeks: each weekday four times).
     alpha : float, default=0.05
+    parameter_draws : int, default=100
+        Draws of the model's variances from the asymptotic normal of their estimates (absolute
+        values); each draw refilters the pre-period and draws the window sums from its forecast.
+        The intervals of the sums are percentile intervals of those draws, so that the
+        uncertainty of the variances (large on a short pre-period, where the level variance is
+        often estimated near zero) widens them. 0: forecast intervals given the fitted variances.
+    seed : int, default=20261201
 
     Attributes
     ----------
@@ -132,10 +161,13 @@ class BroadcastCounterfactual(FittedMixin):
 
     _fitted_attribute = "effects_"
 
-    def __init__(self, *, seasonal_period: int | None = 7, min_pre_days: int = 28, alpha: float = 0.05):
+    def __init__(self, *, seasonal_period: int | None = 7, min_pre_days: int = 28, alpha: float = 0.05,
+                 parameter_draws: int = 100, seed: int = 20261201):
         self.seasonal_period = seasonal_period
         self.min_pre_days = min_pre_days
         self.alpha = alpha
+        self.parameter_draws = parameter_draws
+        self.seed = seed
 
     def fit(self, series: pd.Series, *, starts_on, ends_on, after_days: int, controls: pd.DataFrame | None = None,
             excluded: pd.Series | None = None) -> "BroadcastCounterfactual":
@@ -199,9 +231,10 @@ class BroadcastCounterfactual(FittedMixin):
         self.results_ = results
         self.scale_ = scale
         steps = len(horizon)
-        forecast = results.get_forecast(steps, exog=future_controls)
-        mean = np.asarray(forecast.predicted_mean) * scale
-        cov = forecast_covariance(results, steps) * scale**2
+        beta = self._beta(results.model, np.asarray(results.params))
+        intercepts = None if future_controls is None else future_controls @ beta
+        mean = forecast_mean(results.filter_results, steps, intercepts) * scale
+        cov = forecast_covariance(results.filter_results, steps) * scale**2
         z = stats.norm.ppf(1 - alpha / 2)
         sd = np.sqrt(np.clip(np.diag(cov), 0, None))
         is_excluded = np.zeros(steps, bool) if excluded is None else excluded.reindex(horizon.index).fillna(False).to_numpy(bool)
@@ -209,18 +242,25 @@ class BroadcastCounterfactual(FittedMixin):
         self.daily_ = pd.DataFrame({"day": horizon.index.date, "period": period, "actual": horizon.to_numpy(),
                                     "counterfactual": mean, "ci_low": mean - z * sd, "ci_high": mean + z * sd,
                                     "is_excluded": is_excluded})
+        takes = np.array([(~is_excluded) & (np.ones(steps, bool) if window == "total" else period == window)
+                          for window in WINDOWS], dtype=float)
+        actual_sums = takes @ np.nan_to_num(horizon.to_numpy())
+        self.draws_ = self._draw_sums(model, results, takes, steps, future_controls, scale)
+        self.actual_sums_ = actual_sums
         rows = []
-        for window in WINDOWS:
-            take = (~is_excluded) & (np.ones(steps, bool) if window == "total" else period == window)
-            actual = float(horizon.to_numpy()[take].sum())
+        for k, window in enumerate(WINDOWS):
+            take = takes[k].astype(bool)
             counterfactual = float(mean[take].sum())
-            variance = float(take.astype(float) @ cov @ take.astype(float))
-            half = z * np.sqrt(max(variance, 0.0))
-            estimate = actual - counterfactual
+            estimate = float(actual_sums[k]) - counterfactual
+            if self.draws_ is None:
+                half = z * np.sqrt(max(float(takes[k] @ cov @ takes[k]), 0.0))
+                low, high = estimate - half, estimate + half
+            else:
+                low, high = np.quantile(actual_sums[k] - self.draws_[:, k], [alpha / 2, 1 - alpha / 2])
             days = int((period == window).sum()) if window != "total" else steps
-            rows.append({"window": window, "actual": actual, "counterfactual": counterfactual, "estimate": estimate,
-                         "ci_low": estimate - half if take.any() else np.nan,
-                         "ci_high": estimate + half if take.any() else np.nan,
+            rows.append({"window": window, "actual": float(actual_sums[k]), "counterfactual": counterfactual,
+                         "estimate": estimate, "ci_low": float(low) if take.any() else np.nan,
+                         "ci_high": float(high) if take.any() else np.nan,
                          "days": days, "days_excluded": int((is_excluded & ((period == window) | (window == "total"))).sum())})
         self.effects_ = pd.DataFrame(rows)
         names = list(results.model.param_names)
@@ -229,14 +269,56 @@ class BroadcastCounterfactual(FittedMixin):
         self.regression_ = params[[n for n in names if n.startswith("beta")]] * scale
         return self
 
+    @staticmethod
+    def _beta(model, params: np.ndarray) -> np.ndarray:
+        names = list(model.param_names)
+        return np.array([params[i] for i, n in enumerate(names) if n.startswith("beta")])
+
+    def _draw_sums(self, model, results, takes, steps, future_controls, scale) -> np.ndarray | None:
+        """Draws (parameter_draws x windows) of the counterfactual window sums, or None (plug-in)."""
+        if not self.parameter_draws:
+            return None
+        params = np.asarray(results.params, dtype=float)
+        try:
+            param_cov = np.asarray(results.cov_params(), dtype=float)
+        except Exception:  # noqa: BLE001 - statsmodels raises several kinds when the Hessian fails
+            return None
+        if not np.all(np.isfinite(param_cov)):
+            return None
+        rng = np.random.default_rng(self.seed)
+        names = list(model.param_names)
+        variances = [i for i, n in enumerate(names) if n.startswith("sigma2")]
+        draws = rng.multivariate_normal(params, (param_cov + param_cov.T) / 2, size=int(self.parameter_draws),
+                                        method="eigh")
+        draws[:, variances] = np.abs(draws[:, variances])
+        sums = np.empty((len(draws), takes.shape[0]))
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            for d, theta in enumerate(draws):
+                # The bare Kalman filter output: building statsmodels' results object per draw costs
+                # more than the filter itself.
+                filtered = model.filter(theta, return_ssm=True)
+                beta = self._beta(model, theta)
+                intercepts = None if future_controls is None else future_controls @ beta
+                mean = forecast_mean(filtered, steps, intercepts) * scale
+                cov = forecast_covariance(filtered, steps) * scale**2
+                window_cov = takes @ cov @ takes.T
+                sums[d] = rng.multivariate_normal(takes @ mean, (window_cov + window_cov.T) / 2, method="eigh")
+        return sums
+
     def conf_int(self, alpha: float = 0.05) -> pd.DataFrame:
-        """Intervals of the cumulative effects at level ``1 - alpha`` (same forecast covariance)."""
+        """Intervals of the cumulative effects at level ``1 - alpha``."""
         self._check_fitted()
-        z_new = stats.norm.ppf(1 - check_alpha(alpha) / 2)
-        z_fit = stats.norm.ppf(1 - self.alpha / 2)
-        half = (self.effects_["ci_high"] - self.effects_["estimate"]) * z_new / z_fit
-        return pd.DataFrame({"window": self.effects_["window"], "ci_low": self.effects_["estimate"] - half,
-                             "ci_high": self.effects_["estimate"] + half})
+        alpha = check_alpha(alpha)
+        if self.draws_ is None:
+            z_new = stats.norm.ppf(1 - alpha / 2)
+            z_fit = stats.norm.ppf(1 - self.alpha / 2)
+            half = (self.effects_["ci_high"] - self.effects_["estimate"]) * z_new / z_fit
+            return pd.DataFrame({"window": self.effects_["window"], "ci_low": self.effects_["estimate"] - half,
+                                 "ci_high": self.effects_["estimate"] + half})
+        estimates = self.actual_sums_[None, :] - self.draws_
+        low, high = np.quantile(estimates, [alpha / 2, 1 - alpha / 2], axis=0)
+        return pd.DataFrame({"window": list(WINDOWS), "ci_low": low, "ci_high": high})
 
     def _summary_frame(self) -> pd.DataFrame:
         return self.effects_.assign(ci_level=1 - self.alpha)
@@ -338,7 +420,8 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
         placebo_start = _placebo_start(masked, sale.starts_on, length, int(longrun.broadcast_min_pre_days))
         for outcome, column in OUTCOMES.items():
             y = frame[column].where(~masked)
-            estimator = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha)
+            estimator = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
+                                        parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed))
             method = ("structural time series: local level + weekly pattern (statsmodels UnobservedComponents, "
                       "maximum likelihood; Brodersen et al. 2015)")
             try:
@@ -355,7 +438,8 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
             if placebo_start is not None:
                 fake_end = placebo_start + pd.Timedelta(days=length - 1)
                 placebo_y = y[y.index <= fake_end]
-                placebo = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha).fit(
+                placebo = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
+                                        parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed)).fit(
                     placebo_y, starts_on=placebo_start, ends_on=fake_end, after_days=0)
                 row = placebo.effects_.set_index("window").loc["during"]
                 verdict = bool(row["ci_low"] <= 0 <= row["ci_high"])

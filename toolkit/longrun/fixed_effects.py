@@ -123,6 +123,10 @@ class FixedEffectsRegression:
             raise AnalysisError(
                 f"{table}: term(s) {', '.join(flat)} do not vary within the absorbed groups; they cannot be estimated "
                 "with these fixed effects (collinear with them)")
+        if np.linalg.matrix_rank(x) < x.shape[1]:
+            raise AnalysisError(
+                f"{table}: the terms {', '.join(terms)} are collinear once the fixed effects are absorbed; "
+                "drop one of them or fit on more data")
         clusters = pd.factorize(frame[cluster])[0]
         result = sm.OLS(y, x).fit(cov_type="cluster", cov_kwds={"groups": clusters})
         n, k = x.shape

@@ -32,6 +32,9 @@ from . import _sql
 from .fixed_effects import FixedEffectsRegression
 
 TERMS = ("coupon_available", "coupons_before", "coupon_available_x_coupons_before", "after_coupon")
+#: Fewer clusters than this make cluster-robust errors unreliable (Cameron & Miller 2015, "A
+#: practitioner's guide to cluster-robust inference", J. Human Resources 50(2): a few dozen at least).
+MIN_CUSTOMERS = 30
 METHOD = "linear probability model, customer and week fixed effects absorbed, customer-clustered errors"
 COLUMNS = ["term", "estimate", "ci_low", "ci_high", "std_error", "p_value", "ci_level", "n_customers", "n_weeks",
            "n_calendar_weeks", "method", "sentence"]
@@ -96,6 +99,9 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
     if grid.empty:
         raise AnalysisError("responsiveness_drift: no whole week after any customer's first week on or before "
                             f"{through_end}; the regression needs weeks of purchase history")
+    if grid["customer_no"].nunique() < MIN_CUSTOMERS:
+        raise AnalysisError(f"responsiveness_drift: {grid['customer_no'].nunique()} customers with whole weeks of "
+                            f"history; the customer-clustered errors need at least {MIN_CUSTOMERS}")
     if grid["coupon_available"].sum() == 0:
         raise AnalysisError("responsiveness_drift: no customer held a targeted (treatment-arm) coupon in the weeks "
                             "analysed; the response to coupons cannot be estimated")
