@@ -5,12 +5,13 @@
 -- treat). Windows are cut at the export's last day, the same for both arms; a campaign whose
 -- after-window has not begun by then has 0 days after it. Campaigns without a holdout (arm
 -- 'comparison' in campaign_windows) are left out: their comparison is not randomised.
--- Reads: campaign_windows, orders (panels)
+-- Reads: campaign_windows, purchase_gaps (panels)
 -- Parameters: getvariable('timing_n_blocks'), getvariable('timing_seed')  (the block of a customer
 --             is the same hash as in timing_purchase_days)
 CREATE OR REPLACE TEMP TABLE timing_arm_cells AS
 WITH bounds AS (
-    SELECT max(ordered_on) AS export_end_on FROM orders
+    -- The export's last order day, as purchase_gaps censors at it.
+    SELECT max(ordered_on + days_to_next_order) AS export_end_on FROM purchase_gaps
 ),
 
 randomised AS (

@@ -1,27 +1,30 @@
 """Purchase timing: acceleration, the post-promotion dip, anticipation, and the gap after a deal.
 
 :func:`analyse_timing` is the entry point: it reads the panels through the workspace connection,
-builds spells and cells in SQL (``toolkit.timing.spells``), and fits
+builds its inputs in SQL (``toolkit.timing.spells``, ``sql/timing/``), and writes one row per
+effect x scope x model into ``timing_effects``, each labelled with its ``basis``:
 
-* Kaplan-Meier curves of the days to the next purchase after a deal and after a full-price
-  purchase, log-rank test, medians, and the RMST difference to ``horizon_days`` (effect
-  ``gap_after_deal``, in days; customer-block bootstrap interval), overall and per promotion;
-* the discrete-time complementary log-log model on all customers (the default path at scale) and
-  the Cox model with time-varying covariates on a stratified customer sample (both with
-  customer-clustered bootstrap intervals), whose hazard ratios give ``acceleration``
+* **randomised** (primary where campaigns keep a holdout): the treatment arm's daily order rate
+  over the holdout's, by assignment, in the campaign window (``acceleration``) and in the window
+  after it (``post_promotion_dip``), per campaign and pooled with one intercept per campaign
+  (:mod:`toolkit.timing.randomised`), customer-block bootstrap intervals;
+* **observational**: the discrete-time complementary log-log model on all customers (the default
+  path at scale) and the Cox model with time-varying covariates on a stratified customer sample
+  (both with customer-clustered bootstrap intervals), whose hazard ratios give ``acceleration``
   (``promotion_available``), ``post_promotion_dip`` (``in_dip``: the ``dip_days`` after a coupon
-  redemption, on days no promotion runs) and ``anticipation`` (``in_anticipation``).
+  redemption, on days no promotion runs) and ``anticipation`` (``in_anticipation``). Anticipation
+  is a difference in differences: exposed customers (at least ``anticipation_min_coupons`` coupons
+  received) vs the rest, in the windows before the expected starts vs other days, with a factor
+  per window and the exposed group's difference per calendar month; the discrete model's
+  anticipation rows (pooled and per expected start) are the primary ones;
+* **descriptive**: Kaplan-Meier curves of the days to the next purchase after a deal and after a
+  full-price purchase, log-rank test, medians and the RMST difference (``gap_after_deal``, days).
 
-Both hazard models have the same covariates (see ``sql/timing/timing_spells.sql``), a baseline in
-days since the last purchase (Cox: unrestricted; discrete: one level per period) and, by default,
-calendar-month indicators as a seasonal adjustment. Assumptions, stated in every row's note:
-the hazard ratios compare the same customers' days with and without each condition, adjusted for
-time since the last purchase, the calendar month and coupons received; they are not randomised
-contrasts (the holdout comparison in ``campaign_effects`` is), and a customer trait that both
-drives redemption and the later purchase rate would bias the dip.
-
-When targeted campaigns keep no regular cadence, anticipation is reported as not estimable (a
-row with a null estimate and a note), never as zero.
+The hazard models adjust for days since the last purchase, calendar month, coupons received and a
+purchase-rate class measured before each promotion. A row that the data cannot support (too few
+exposed customers or starts, a thin arm, an after-window past the export's end) has no estimate and
+a note that starts with "not estimable", never a number near 1. Only pooled primary rows carry a
+``verdict``.
 """
 
 from __future__ import annotations
@@ -330,7 +333,7 @@ def _randomised(readout, tables, timing, effects) -> None:
         fit = fits[window]
         readout.randomised[effect] = fit
         what = ("in the campaign window" if window == "during" else
-                f"in the window after the campaign (after_days, cut at the export's end)")
+                "in the window after the campaign (after_days, cut at the export's end)")
         for row in fit.ratios_.itertuples():
             scope = "all" if row.stratum == POOLED else row.stratum
             if not row.is_estimable:

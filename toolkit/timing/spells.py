@@ -9,7 +9,7 @@ periods of the discrete-time model) are registered as relations, never formatted
 Order of the files (each reads only the panels, the checked inputs and earlier ones):
 ``timing_purchase_days`` -> ``timing_calendar`` -> ``timing_customer_changes`` ->
 ``timing_spells`` (a view) -> ``timing_cells``, ``timing_gap_counts``, ``timing_cox_sample``,
-``timing_window_exposure``; ``timing_arm_cells`` reads the ``campaign_windows`` and ``orders`` panels alone.
+``timing_window_exposure``; ``timing_arm_cells`` reads the ``campaign_windows`` and ``purchase_gaps`` panels alone.
 """
 
 from __future__ import annotations
