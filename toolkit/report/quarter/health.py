@@ -283,8 +283,8 @@ def _drift_row(ind: Indicator, frame: pd.DataFrame, quarter: str, level: float, 
     low, high = r.get("ci_low", math.nan), r.get("ci_high", math.nan)
     assessment = _assess(ind, r["estimate"], low, high, null=null)
     direction = "up" if r["estimate"] > null else "down"
-    term = r.get("term", r.get("measure", ""))
-    n = r.get("n_customers", r.get("customers"))
+    term = r.get("term", r.get("measure", r.get("comparison", "")))
+    n = r.get("n_customers", r.get("customers", r.get("n_to")))
     return _row(ind, quarter, value=r["estimate"], ci_low=low, ci_high=high, ci_level=r.get("ci_level", level), n=n,
                 n_label="customers", assessment=assessment, sentence=_sentence(ind, assessment, direction, basis),
                 reason=f"{ind.source}: {term}" if term else ind.source)
@@ -314,6 +314,8 @@ def drift_indicators(tables: dict, missing: dict, quarter: str, level: float) ->
             if col in frame.columns and (frame[col].astype(str) == quarter).any():
                 frame = frame[frame[col].astype(str) == quarter]
                 break
+        if "comparison" in frame.columns:  # year over year first: adjacent quarters differ by season too
+            frame = frame.sort_values("comparison", key=lambda c: c.astype(str) != "year_over_year", kind="stable")
         if "auc" in frame.columns and "estimate" not in frame.columns:
             frame = frame.rename(columns={"auc": "estimate", "auc_ci_low": "ci_low", "auc_ci_high": "ci_high"})
         text = " ".join(str(frame.iloc[0].get(c, "")) for c in ("measure", "term", "method", "metric")).lower()
