@@ -12,15 +12,15 @@
 from __future__ import annotations
 
 import math
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
+from ... import sqlfiles
 from ...effects.holdout import newcombe_interval
 
-SQL_DIR = Path(__file__).resolve().parents[3] / "sql" / "report"
+SQL_DIR = sqlfiles.folder("report")  # sql/report in a clone, toolkit/sql/report in an installed package
 
 QUARTER_CAMPAIGN_COLUMNS = ["promotion_id", "name", "audience", "mechanic", "depth", "starts_on", "ends_on", "status",
                             "randomisation_check", "n_treated", "n_holdout"]
