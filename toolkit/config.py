@@ -33,6 +33,7 @@ class TableSettings:
     header: bool = True
     table: str | None = None  # for format = "duckdb": the table inside the database file
     hive_partitioning: bool | None = None
+    encoding: str | None = None  # CSV only: utf-8 (default), utf-16 or latin-1
 
     def export_column(self, contract_name: str) -> str:
         return self.columns.get(contract_name, contract_name)
@@ -126,6 +127,26 @@ CHOICES = {
 
 
 @dataclass(frozen=True)
+class CheckSettings:
+    """The horizon of the ``timestamp_beyond_horizon`` rule: no single row may stretch the timeline."""
+
+    future_days: int = 1  # order lines and assignments later than the check's time + this: rejected
+    past_years: int = 30  # any timestamp earlier than the check's time - this: rejected
+    promotion_future_days: int = 731  # a promotion starting or ending later than the check's time + this: rejected
+
+
+@dataclass(frozen=True)
+class GateSettings:
+    """Sanity gates between the check and any analysis (``toolkit.gates``): below a threshold, exit 3."""
+
+    min_lines_accepted_share: float = 0.9  # of order lines (and of assignments) read
+    min_assigned_found_share: float = 0.5  # of assigned customers who appear in the accepted order lines
+    min_promotions_kept_share: float = 1.0  # of promotions named by order lines that keep some of their lines
+    date_margin_days: int = 366  # how far outside the central 98% of order dates a line may lie
+    max_outlying_date_share: float = 0.0  # of order lines allowed beyond that margin
+
+
+@dataclass(frozen=True)
 class ReportSettings:
     small_cell: int = 10
     # The quarterly report (`liftlag quarter`): cells describing fewer customers are suppressed.
@@ -164,6 +185,8 @@ class Settings:
     timing: TimingSettings = TimingSettings()
     longrun: LongrunSettings = LongrunSettings()
     report: ReportSettings = ReportSettings()
+    checks: CheckSettings = CheckSettings()
+    gates: GateSettings = GateSettings()
     workspace: WorkspaceSettings = WorkspaceSettings()
     engine: EngineSettings = EngineSettings()
     raw: dict[str, Any] = field(default_factory=dict, repr=False)
@@ -188,11 +211,15 @@ _SECTIONS = {
     "timing": TimingSettings,
     "longrun": LongrunSettings,
     "report": ReportSettings,
+    "checks": CheckSettings,
+    "gates": GateSettings,
     "workspace": WorkspaceSettings,
     "engine": EngineSettings,
 }
 _TOP_KEYS = ("tables", *_SECTIONS)
-_TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning")
+_TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning",
+               "encoding")
+ENCODINGS = ("utf-8", "utf-16", "latin-1")
 _MEMORY = re.compile(r"^\s*\d+(\.\d+)?\s*(B|KB|MB|GB|TB|KiB|MiB|GiB|TiB)\s*$", re.I)
 
 
@@ -289,10 +316,16 @@ def _parse_table(path: Path, name: str, body: Any) -> TableSettings:
     hive = body.get("hive_partitioning")
     if hive is not None:
         _expect(path, f"{where}.hive_partitioning", hive, bool, "true or false")
+    encoding = body.get("encoding")
+    if encoding is not None:
+        _expect(path, f"{where}.encoding", encoding, str, f"one of {', '.join(ENCODINGS)}")
+        if encoding.lower() not in ENCODINGS:
+            raise ConfigError(f"{path}: key '{where}.encoding' must be one of {', '.join(ENCODINGS)}, found {encoding!r}")
+        encoding = encoding.lower()
     return TableSettings(
         name=name, path=file_path, format=fmt, columns=dict(columns),
         values={k: dict(v) for k, v in values.items()}, formats=dict(formats),
-        delimiter=delimiter, header=header, table=table, hive_partitioning=hive,
+        delimiter=delimiter, header=header, table=table, hive_partitioning=hive, encoding=encoding,
     )
 
 
@@ -326,7 +359,12 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
                      "baseline_threshold", "target_lift", "min_regular_share",
+<<<<<<< HEAD
                      "reference_depth", "dependent_threshold"):
+=======
+                     "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
+                     "max_outlying_date_share"):
+>>>>>>> main
             kwargs[key] = _share(path, full, value)
         elif key == "exclude_features":
             _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")
@@ -340,7 +378,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = float(a)
         elif isinstance(default, int) or key == "threads":
             v = _expect(path, full, value, int, "a whole number")
-            if v < 0 or (v == 0 and key not in ("seed",)):
+            if v < 0 or (v == 0 and key not in ("seed", "future_days")):
                 raise ConfigError(f"{path}: key '{full}' must be a positive whole number, found {value!r}")
             kwargs[key] = v
         else:
@@ -391,8 +429,26 @@ def load(config_path: str | Path) -> Settings:
     path = Path(config_path).expanduser().resolve()
     if not path.exists():
         raise ConfigError(f"config file {path} does not exist; write one with `liftlag init EXPORT_DIR`")
+    if path.is_dir():
+        hint = " (it holds a liftlag.toml: give that file)" if (path / "liftlag.toml").is_file() else ""
+        raise ConfigError(f"-c {path} is a folder, not a config file{hint}; give the liftlag.toml file itself")
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"config file {path} cannot be read: {exc.strerror or exc}; check its permissions") from None
+    try:
+        # utf-8-sig: a byte-order mark written by some editors is accepted and dropped.
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        column = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise ConfigError(
+            f"{path}: line {line}, column {column}: byte 0x{raw[exc.start]:02x} is not UTF-8 (the file was saved in "
+            f"another encoding, such as Latin-1); save it as UTF-8"
+        ) from None
+    try:
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"{path}: not valid TOML: {exc}") from None
+        raise ConfigError(f"{path}: not valid TOML: {exc}; fix that line (strings need double quotes, "
+                          f"sections [brackets])") from None
     return parse(data, path)

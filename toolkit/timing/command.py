@@ -27,10 +27,15 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_timing, options_from, write_timing
 
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
+    check_out_dir(args.out)
     con = workspace.connect(settings)
     try:
         readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
@@ -40,8 +45,8 @@ def run_command(args) -> int:
     write_timing(readout, out)
     _print_summary(console, readout)
     for note in readout.notes:
-        err_console.print(f"[yellow]note:[/] {note}")
-    console.print(f"timing tables in [bold]{out}[/] ({', '.join(sorted(readout.tables))})")
+        err_console.print(f"[yellow]note:[/] {escape(str(note))}")
+    console.print(f"timing tables in [bold]{escape(str(out))}[/] ({', '.join(sorted(readout.tables))})")
     return 0
 
 
