@@ -359,12 +359,9 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
                      "baseline_threshold", "target_lift", "min_regular_share",
-<<<<<<< HEAD
-                     "reference_depth", "dependent_threshold"):
-=======
+                     "reference_depth", "dependent_threshold",
                      "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
                      "max_outlying_date_share"):
->>>>>>> main
             kwargs[key] = _share(path, full, value)
         elif key == "exclude_features":
             _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")
