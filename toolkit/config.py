@@ -150,6 +150,16 @@ class GateSettings:
 @dataclass(frozen=True)
 class ReportSettings:
     small_cell: int = 10
+    # The quarterly report (`liftlag quarter`): cells describing fewer customers are suppressed.
+    min_cell_customers: int = 10
+    # The overall call's rule (healthy / watch / act), written out in the report's methods section.
+    act_min_adverse: int = 2
+    watch_min_adverse: int = 1
+    act_on_negative_margin: bool = True
+    watch_on_groups_against: bool = True
+    # Weeks around each campaign's start in the event-study chart.
+    event_weeks_before: int = 8
+    event_weeks_after: int = 8
 
 
 @dataclass(frozen=True)
