@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from tests.foundation.test_cdnow_reference import cdnow_file
+from tests.foundation.test_cdnow_reference import write_cdnow_export
 from toolkit import config, panels, workspace
 from toolkit.errors import AnalysisError, DataError
 from toolkit.longrun.bgnbd import BetaGeometricNBD
@@ -46,38 +46,10 @@ def test_bgnbd_matches_published_cdnow_fit():
     assert set(fit.summary["parameter"]) == set(PUBLISHED) and "log-likelihood" in fit.to_html()
 
 
-CDNOW_CONFIG = """
-[tables.transactions]
-path = "cdnow.csv"
-[tables.transactions.columns]
-order_id = "record_no"
-ordered_at = "date"
-product_id = "item"
-quantity = "number_of_cds"
-net_amount = "dollar_value"
-[tables.transactions.formats]
-ordered_at = "%Y%m%d"
-[tables.promotions]
-path = "promotions.csv"
-[tables.assignments]
-path = "assignments.csv"
-[economics]
-margin_rate = 0.3
-"""
-
-
 @pytest.fixture(scope="module")
 def cdnow_connection(tmp_path_factory):
     """The CDNOW master log checked and built into a workspace, as tests/foundation reads it."""
-    folder = tmp_path_factory.mktemp("cdnow_longrun")
-    log = pd.read_csv(cdnow_file(), sep=r"\s+", dtype=str)
-    log.insert(0, "record_no", [f"r{i}" for i in range(len(log))])  # one record = one purchase occasion
-    log["item"] = "cd"
-    log.to_csv(folder / "cdnow.csv", index=False)
-    (folder / "promotions.csv").write_text("promotion_id,starts_at,ends_at,mechanic,audience\n")
-    (folder / "assignments.csv").write_text("promotion_id,customer_id,arm,assigned_at\n")
-    (folder / "liftlag.toml").write_text(CDNOW_CONFIG)
-    settings = config.load(folder / "liftlag.toml")
+    settings = config.load(write_cdnow_export(tmp_path_factory.mktemp("cdnow_longrun")))
     panels.build(settings)
     con = workspace.connect(settings)
     yield con
