@@ -11,14 +11,51 @@ from pathlib import Path
 
 from rich.console import Console
 from rich.markup import escape
+from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
 from rich.table import Table
 
 console = Console(stderr=False, highlight=False, soft_wrap=True)
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 
 
+class StepProgress:
+    """Progress of `check` and `build` on an interactive terminal: one line per step (reading a
+    table, each check rule, each panel, writing) with its rows where known and its elapsed time,
+    cleared when the command ends. Silent when the output is not a terminal (tests, CI, logs).
+
+    A watcher for ``toolkit.steps.Timings``: use as a context manager and pass it as ``watcher``.
+    """
+
+    def __init__(self, console: Console | None = None):
+        target = console or err_console
+        self.progress = Progress(
+            SpinnerColumn(), TextColumn("{task.description}"), TextColumn("{task.fields[rows]}", justify="right"),
+            TimeElapsedColumn(), console=target, transient=True, disable=not target.is_terminal,
+        )
+        self._task = None
+
+    def __enter__(self) -> "StepProgress":
+        self.progress.start()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.progress.stop()
+
+    def started(self, step) -> None:
+        rows = f"{step.rows:,} rows" if step.rows is not None else ""
+        self._task = self.progress.add_task(escape(step.name), total=1, rows=rows)
+
+    def finished(self, step) -> None:
+        if self._task is not None:
+            rows = f"{step.rows:,} rows" if step.rows is not None else ""
+            self.progress.update(self._task, completed=1, rows=rows)
+            self._task = None
+
+
 def print_check(result) -> None:
-    table = Table(title=f"check ({result.seconds:.1f} s)", show_lines=False)
+    when = f"reused from the check at {result.reused_from[:19]} UTC" if getattr(result, "reused_from", None) \
+        else f"{result.seconds:.1f} s"
+    table = Table(title=f"check ({when})", show_lines=False)
     for col in ("table", "read", "accepted", "rejected", "warnings"):
         table.add_column(col, justify="left" if col == "table" else "right")
     for row in result.summary.itertuples():
@@ -70,14 +107,11 @@ def run_build(settings, force: bool = False, *, wait: float | None = None):
     from . import panels
 
     started = time.perf_counter()
-    with console.status("building…") as status:
-        def progress(step, detail=""):
-            status.update(f"{step}: {escape(detail)}")
-
+    with StepProgress() as watcher:
         def notify(text):
             err_console.print(f"[yellow]note:[/] {escape(text)}")
 
-        result = panels.build(settings, force=force, progress=progress, on_check=print_check, notify=notify, wait=wait)
+        result = panels.build(settings, force=force, watcher=watcher, on_check=print_check, notify=notify, wait=wait)
     if result.skipped:
         console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
     else:
