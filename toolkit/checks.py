@@ -126,7 +126,7 @@ def _accepted_select(con, name: str, rejected: str | None = None) -> str:
     """SELECT of one table's accepted rows, with the contract's derivations applied.
 
     ``rejected``: the ANTI JOIN that drops the rejected rows (default: the ``rejected`` table by
-    row key)."""
+    row key; "" when the table has no rejected row)."""
     contract = INPUT_TABLES[name]
     cols = [c.name for c in contract.columns]
     extras = []
@@ -143,8 +143,9 @@ def _accepted_select(con, name: str, rejected: str | None = None) -> str:
         else:
             exprs.append(q(c))
     exprs += [_typed_attribute(con, name, e) for e in extras]
-    rejected = rejected or f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
-    return f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s {rejected}"
+    if rejected is None:
+        rejected = f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
+    return f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s {rejected}".rstrip()
 
 
 def _typed_attribute(con, table: str, column: str) -> str:
@@ -305,9 +306,12 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
             "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
             "WHERE h.severity = 'warn'"
         )
-        step.rows = scalar(con, "SELECT count(*) FROM rejected")
+        rejected_per_table = dict(con.execute("SELECT table_name, count(*) FROM rejected GROUP BY 1").fetchall())
+        step.rows = sum(rejected_per_table.values())
         for name in INPUT_TABLES:
-            con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name)}")
+            # A table with no rejected row is read without the join (and without its row keys).
+            drop = None if rejected_per_table.get(name) else ""
+            con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name, drop)}")
     with timings.step("accounting (accepted + rejected = read)") as step:
         summary = _summary(con, infos)
         step.rows = int(summary["rows_read"].sum())
@@ -415,10 +419,12 @@ def reuse(con, settings: Settings, meta: dict, timings: Timings | None = None) -
             return None
         for name in PERSISTED:
             con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS SELECT * FROM chk.main.{q(name)}")
+        none_rejected = int(summary.loc[summary["table"] == "transactions", "rejected"].iloc[0]) == 0
         con.execute(
             "CREATE OR REPLACE TEMP VIEW accepted_transactions AS " + _accepted_select(
-                con, "transactions", "ANTI JOIN chk.main.rejected_rows AS r ON r.table_name = 'transactions' "
-                "AND r.row_id = s._file_row AND r.source_file = s._source_file"))
+                con, "transactions", "" if none_rejected else (
+                    "ANTI JOIN chk.main.rejected_rows AS r ON r.table_name = 'transactions' "
+                    "AND r.row_id = s._file_row AND r.source_file = s._source_file")))
         # accepted + rejected = read, verified again on the rows read now.
         kept = scalar(con, "SELECT count(*) FROM accepted_transactions")
         expected = int(summary.loc[summary["table"] == "transactions", "accepted"].iloc[0])
