@@ -411,8 +411,8 @@ def reuse(con, settings: Settings, meta: dict, timings: Timings | None = None) -
     infos = sources.register(con, settings, timings=timings)
     with timings.step("accepted rows from the check") as step:
         con.execute("ATTACH ? AS chk (READ_ONLY)", [meta["path"]])
-        summary = con.execute("SELECT * FROM chk.check_summary ORDER BY list_position(?, \"table\")",
-                              [list(INPUT_TABLES)]).df()
+        summary = con.execute("SELECT * FROM chk.check_summary").df()
+        summary = summary.set_index("table").loc[[t for t in INPUT_TABLES if t in set(summary["table"])]].reset_index()
         read = dict(zip(summary["table"], summary["rows_read"]))
         if any(int(read.get(name, -1)) != info.rows for name, info in infos.items()):
             con.execute("DETACH chk")
@@ -432,8 +432,8 @@ def reuse(con, settings: Settings, meta: dict, timings: Timings | None = None) -
             con.execute("DETACH chk")
             return None
         step.rows = int(kept)
-    rejects = con.execute("SELECT * FROM chk.rejects_summary").df()
-    warnings = con.execute("SELECT * FROM chk.warnings_summary").df()
+    rejects = con.execute("SELECT * FROM chk.rejects_summary ORDER BY 1, 2").df()
+    warnings = con.execute("SELECT * FROM chk.warnings_summary ORDER BY 1, 2").df()
     examples = pd.DataFrame(meta["examples"]["rows"], columns=meta["examples"]["columns"])
     result = CheckResult(summary, rejects, warnings, list(meta["problems"]), meta["fingerprint"],
                          time.perf_counter() - started, examples, timings.records()[first_step:],
