@@ -1,17 +1,20 @@
 #!/usr/bin/env bash
-# Foundation benchmark: a cold `liftlag build` (it checks the export and builds the panels in one
-# pass over the files), then `liftlag check` alone, on one export directory.
+# Foundation benchmark on one export directory: `liftlag check` then `liftlag build` from a cold
+# workspace (the build reuses the fresh check and builds the panels), then the bare DuckDB job
+# (bench/peers/bare_duckdb.py: orders, customer-week and gap tables straight from the Parquet) in
+# the same sitting.
 #
 #   bench/run_foundation.sh EXPORT_DIR [LABEL]
 #
 # EXPORT_DIR holds a liftlag.toml (as written by bench/generate_export.py). The workspace named in
-# the config is removed first, so both steps start cold (the OS file cache is not dropped). Each
-# step runs under /usr/bin/time -v; the script prints wall seconds and peak RSS (MB) per step and
-# in total, and appends one row to bench/results.md. LABEL (optional) goes into the notes column.
+# the config is removed first, so the check starts cold (the OS file cache is not dropped). Each
+# step runs under /usr/bin/time -v; the script prints wall and CPU seconds and peak RSS (MB) per
+# step and in total, and appends one row to bench/results.md. LABEL (optional) goes into the notes.
 #
-# Environment: LIFTLAG (the command, default /work/venv/bin/liftlag or `liftlag` on PATH),
-# PYTHON (to read the config, default /work/venv/bin/python), BENCH_LOG_DIR (step logs, default
-# EXPORT_DIR/../logs), RESULTS (default bench/results.md next to this script).
+# Environment: LIFTLAG (the command, default .venv/bin/liftlag of this clone or `liftlag` on PATH),
+# PYTHON (to read the config and run the bare job, default the python beside LIFTLAG),
+# BENCH_LOG_DIR (step logs, default EXPORT_DIR/../logs), RESULTS (default bench/results.md next to
+# this script), BARE=0 to skip the bare job.
 set -uo pipefail
 
 if [[ $# -lt 1 || ! -d "$1" ]]; then
@@ -23,14 +26,14 @@ label=${2:-}
 config="$export_dir/liftlag.toml"
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
 results=${RESULTS:-$here/results.md}
-python=${PYTHON:-/work/venv/bin/python}
 if [[ -n "${LIFTLAG:-}" ]]; then
   liftlag=$LIFTLAG
-elif [[ -x /work/venv/bin/liftlag ]]; then
-  liftlag=/work/venv/bin/liftlag
+elif [[ -x "$here/../.venv/bin/liftlag" ]]; then
+  liftlag=$here/../.venv/bin/liftlag
 else
   liftlag=$(command -v liftlag || true)
 fi
+python=${PYTHON:-$(dirname "$liftlag")/python}
 timer=/usr/bin/time
 [[ -f "$config" ]] || { echo "no liftlag.toml in $export_dir" >&2; exit 2; }
 [[ -n "$liftlag" ]] || { echo "liftlag command not found (set LIFTLAG=...)" >&2; exit 2; }
@@ -96,19 +99,38 @@ run_step() {  # run_step STEP: one liftlag subcommand under /usr/bin/time -v
   fi
 }
 
-run_step build
 run_step check
+run_step build
 
-# `build` alone is check + panels from a cold workspace: that is the figure the targets are about.
-total=${wall[build]:-0}
-peak=${rss[build]:-0}
+# The bare job: the same export's Parquet, three tables, no checks (what the targets compare with).
+bare_wall="" bare_cpu="" bare_rss=""
+if [[ "${BARE:-1}" != 0 && -d "$export_dir/transactions" ]]; then
+  tv="$log_dir/$name-$stamp-bare.time" bare_db=$(mktemp -u /tmp/liftlag-bare-XXXXXX.duckdb)
+  echo "== bare DuckDB job (bench/peers/bare_duckdb.py)"
+  "$timer" -v -o "$tv" "$python" "$here/peers/bare_duckdb.py" "$export_dir" "$bare_db" --threads "${threads/default/2}" \
+    >"$log_dir/$name-$stamp-bare.log" 2>&1
+  rm -f -- "$bare_db" "$bare_db.wal"
+  bare_wall=$(awk -F': ' '/Elapsed \(wall clock\)/ {n=split($2,p,":"); s=0; for(i=1;i<=n;i++) s=s*60+p[i]; printf "%.2f", s}' "$tv")
+  bare_rss=$(awk -F': ' '/Maximum resident set size/ {printf "%.0f", $2/1024}' "$tv")
+  bare_cpu=$(awk -F': ' '/(User|System) time \(seconds\)/ {s+=$2} END {printf "%.1f", s}' "$tv")
+  printf '   wall %s s, cpu %s s, peak RSS %s MB\n' "$bare_wall" "$bare_cpu" "$bare_rss"
+fi
+
+# check then build from a cold workspace: the figure the targets are about.
+total=$(awk -v a="${wall[check]:-0}" -v b="${wall[build]:-0}" 'BEGIN {printf "%.2f", a + b}')
+peak=$(( ${rss[check]:-0} > ${rss[build]:-0} ? ${rss[check]:-0} : ${rss[build]:-0} ))
 mem_gb=$(awk '/MemTotal/ {printf "%.0f", $2/1024/1024}' /proc/meminfo)
 machine="$(nproc) cores / ${mem_gb} GB"
 cell() {  # cell STEP: seconds, or the failure
   if [[ ${rc[$1]} -eq 0 ]]; then echo "${wall[$1]}"; else echo "failed (exit ${rc[$1]}) ${wall[$1]}"; fi
 }
 echo "== $name: lines $lines, memory_limit $memory_limit, threads $threads"
-printf '   build (check + panels) %s s, peak RSS %s MB; check alone %s s\n' "$(cell build)" "$peak" "$(cell check)"
+printf '   check %s s + build %s s = %s s, peak RSS %s MB\n' "$(cell check)" "$(cell build)" "$total" "$peak"
+ratio=""
+if [[ -n "$bare_wall" ]]; then
+  ratio=$(awk -v t="$total" -v b="$bare_wall" 'BEGIN {if (b > 0) printf "%.1f", t / b}')
+  echo "   bare job $bare_wall s (cpu $bare_cpu s, peak RSS $bare_rss MB): check + build is ${ratio}x"
+fi
 
 if [[ ! -f "$results" ]]; then
   cat >"$results" <<'EOF'
@@ -116,11 +138,12 @@ if [[ ! -f "$results" ]]; then
 
 Rows appended by `bench/run_foundation.sh` (cold workspace; see bench/README.md).
 
-| date (UTC) | lines | memory_limit | check alone s | build s (check + panels) | total s | peak RSS MB (build) | machine | notes |
+| date (UTC) | lines | memory_limit | check s | build s | total s | peak RSS MB | machine | notes |
 |---|---|---|---|---|---|---|---|---|
 EOF
 fi
-notes="$name, threads $threads, cpu s build ${cpu[build]} / check ${cpu[check]}, load before $load_before, commit $commit${label:+, $label}"
+bare_note=${bare_wall:+, bare job $bare_wall s / cpu $bare_cpu s / $bare_rss MB (${ratio}x)}
+notes="$name, threads $threads, cpu s check ${cpu[check]} / build ${cpu[build]}$bare_note, load before $load_before, commit $commit${label:+, $label}"
 printf '| %s | %s | %s | %s | %s | %s | %s | %s | %s |\n' \
   "$(date -u '+%Y-%m-%d %H:%M')" "$lines" "$memory_limit" "$(cell check)" "$(cell build)" "$total" "$peak" \
   "$machine" "$notes" >>"$results"

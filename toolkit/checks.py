@@ -10,10 +10,12 @@ written. Warnings never remove a row.
 from __future__ import annotations
 
 import datetime as dt
+import json
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
+import duckdb
 import pandas as pd
 
 from . import gates, sources, sqlfiles, workspace
@@ -23,6 +25,7 @@ from .engine.duckdb import connect as engine_connect
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError
+from .steps import TextWatcher, Timings
 
 SQL_DIR = sqlfiles.root()  # sql/ in a clone, toolkit/sql in an installed package
 CHECKS_DIR = sqlfiles.folder("checks")
@@ -75,6 +78,9 @@ class CheckResult:
     fingerprint: str = ""
     seconds: float = 0.0
     examples: pd.DataFrame | None = None  # up to 3 rejected rows per table and reason
+    steps: list[dict] = field(default_factory=list)  # per step: step, seconds, rows (toolkit.steps)
+    checked_at: str = ""  # the moment the rules ran (UTC, ISO): the horizon and "the future" are relative to it
+    reused_from: str | None = None  # a build that reused this check (toolkit.checks.reuse): when it ran
 
     @property
     def usable(self) -> bool:
@@ -93,6 +99,7 @@ def input_fingerprint(settings: Settings) -> tuple[str, dict]:
 def state_entry(result: "CheckResult") -> dict:
     """What state.json keeps of a check."""
     return {"fingerprint": result.fingerprint, "usable": result.usable, "problems": result.problems,
+            "checked_at": result.checked_at, "seconds": round(result.seconds, 3), "steps": result.steps,
             "summary": result.summary.to_dict(orient="records")}
 
 
@@ -115,8 +122,11 @@ def _allowed_text(settings: Settings, table: str, column: str, allowed: tuple[st
     return f"one of the export's codes {codes} (tables.{table}.values.{column}){rest}"
 
 
-def _accepted_select(con, name: str) -> str:
-    """SELECT of one table's accepted rows, with the contract's derivations applied."""
+def _accepted_select(con, name: str, rejected: str | None = None) -> str:
+    """SELECT of one table's accepted rows, with the contract's derivations applied.
+
+    ``rejected``: the ANTI JOIN that drops the rejected rows (default: the ``rejected`` table by
+    row key; "" when the table has no rejected row)."""
     contract = INPUT_TABLES[name]
     cols = [c.name for c in contract.columns]
     extras = []
@@ -133,10 +143,9 @@ def _accepted_select(con, name: str) -> str:
         else:
             exprs.append(q(c))
     exprs += [_typed_attribute(con, name, e) for e in extras]
-    return (
-        f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s "
-        f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
-    )
+    if rejected is None:
+        rejected = f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
+    return f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s {rejected}".rstrip()
 
 
 def _typed_attribute(con, table: str, column: str) -> str:
@@ -168,7 +177,7 @@ def _typed_attribute(con, table: str, column: str) -> str:
 PERSISTED = tuple(name for name in INPUT_TABLES if name != "transactions")
 
 
-def run(settings: Settings, progress=None, *, notify=None) -> CheckResult:
+def run(settings: Settings, progress=None, *, notify=None, watcher=None) -> CheckResult:
     """Validate the export and write ``checked.duckdb`` to the workspace.
 
     Holds the workspace lock (a running build is waited for, see ``toolkit.lock``); the published
@@ -182,6 +191,9 @@ def run(settings: Settings, progress=None, *, notify=None) -> CheckResult:
         Called with a short text before each step.
     notify : callable, optional
         Called with a line of text about the workspace lock.
+    watcher : object, optional
+        Told when each step starts and ends (``toolkit.steps``): the terminal's progress display.
+        The steps' timings go to the workspace's ``manifest.json`` (``check``) and ``state.json``.
 
     Raises
     ------
@@ -193,18 +205,37 @@ def run(settings: Settings, progress=None, *, notify=None) -> CheckResult:
     with hold(settings.workspace_dir, wait=settings.workspace.lock_wait_seconds, notify=notify):
         workspace.remove_leftovers(settings)
         con = engine_connect(settings)
+        timings = Timings(_Both(TextWatcher(progress) if progress else None, watcher))
         try:
-            result = validate(con, settings, progress)
+            result = validate(con, settings, timings=timings)
         finally:
             con.close()
         state = workspace.read_state(settings)
         state["check"] = state_entry(result)
         workspace.write_state(settings, state)
+        workspace.write_manifest(settings, "check", {
+            "fingerprint": result.fingerprint, "checked_at": result.checked_at,
+            "seconds": round(result.seconds, 3), "usable": result.usable, "steps": result.steps})
     return result
 
 
+class _Both:
+    """Tells two watchers (either may be None)."""
+
+    def __init__(self, *watchers):
+        self.watchers = [w for w in watchers if w is not None]
+
+    def started(self, step) -> None:
+        for w in self.watchers:
+            getattr(w, "started", lambda s: None)(step)
+
+    def finished(self, step) -> None:
+        for w in self.watchers:
+            getattr(w, "finished", lambda s: None)(step)
+
+
 def validate(con, settings: Settings, progress=None, *, checked_path: Path | None = None,
-             fingerprint: str | None = None) -> CheckResult:
+             fingerprint: str | None = None, timings: Timings | None = None) -> CheckResult:
     """Stage the export on ``con``, run every rule and write the checked tables.
 
     Leaves on ``con`` the temporary views ``accepted_<table>`` (accepted rows, typed, with the
@@ -217,11 +248,15 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
         default they are written to a private file and published as ``checked.duckdb``.
     fingerprint : str, optional
         The check's fingerprint when the caller has it (``toolkit.freshness.check_fingerprint``).
+    timings : Timings, optional
+        Records each step (seconds, rows) and tells its watcher; by default the step names go
+        to ``progress``. The records are also in the result's ``steps``.
     """
     started = time.perf_counter()
-    say = progress or (lambda text: None)
+    timings = timings or Timings(TextWatcher(progress) if progress else None)
+    first_step = len(timings.steps)
     fp = fingerprint or input_fingerprint(settings)[0]
-    infos = sources.register(con, settings, progress=say)
+    infos = sources.register(con, settings, timings=timings)
     for statement in sources.staged_union_sql():
         con.execute(statement)
     for table, column, allowed in (("assignments", "arm", ARMS), ("promotions", "mechanic", MECHANICS),
@@ -253,57 +288,179 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
                 "AND h.severity = 'reject' AND s._row_id = h._row_id"
             )
             promotions_ready = True
-        say(f"rule {rule.name}")
+        with timings.step(f"rule {rule.name}") as step:
+            step.rows = _inserted(con.execute(
+                f"INSERT INTO check_hits SELECT table_name, _row_id, ?, ?, ?, detail FROM ({rule.sql()})",
+                [rule.name, rule.severity, order],
+            ))
+    with timings.step("rejected and warned rows") as step:
         con.execute(
-            f"INSERT INTO check_hits SELECT table_name, _row_id, ?, ?, ?, detail FROM ({rule.sql()})",
-            [rule.name, rule.severity, order],
+            "CREATE OR REPLACE TEMP TABLE rejected AS SELECT table_name, _row_id, "
+            "arg_min(rule, rule_order) AS reason, arg_min(detail, rule_order) AS detail, "
+            "string_agg(rule, ', ' ORDER BY rule_order) AS all_reasons "
+            "FROM check_hits WHERE severity = 'reject' GROUP BY table_name, _row_id"
         )
-    con.execute(
-        "CREATE OR REPLACE TEMP TABLE rejected AS SELECT table_name, _row_id, "
-        "arg_min(rule, rule_order) AS reason, arg_min(detail, rule_order) AS detail, "
-        "string_agg(rule, ', ' ORDER BY rule_order) AS all_reasons "
-        "FROM check_hits WHERE severity = 'reject' GROUP BY table_name, _row_id"
-    )
-    # Warnings count only rows that are kept.
-    con.execute(
-        "CREATE OR REPLACE TEMP TABLE warned AS SELECT h.* FROM check_hits AS h "
-        "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
-        "WHERE h.severity = 'warn'"
-    )
-    for name in INPUT_TABLES:
-        con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name)}")
-    summary = _summary(con, infos)
+        # Warnings count only rows that are kept.
+        con.execute(
+            "CREATE OR REPLACE TEMP TABLE warned AS SELECT h.* FROM check_hits AS h "
+            "ANTI JOIN rejected AS r ON h.table_name = r.table_name AND h._row_id = r._row_id "
+            "WHERE h.severity = 'warn'"
+        )
+        rejected_per_table = dict(con.execute("SELECT table_name, count(*) FROM rejected GROUP BY 1").fetchall())
+        step.rows = sum(rejected_per_table.values())
+        for name in INPUT_TABLES:
+            # A table with no rejected row is read without the join (and without its row keys).
+            drop = None if rejected_per_table.get(name) else ""
+            con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name, drop)}")
+    with timings.step("accounting (accepted + rejected = read)") as step:
+        summary = _summary(con, infos)
+        step.rows = int(summary["rows_read"].sum())
     problems = _problems(summary, con)
     if not problems:
         # The data can be read; can it answer the question? (toolkit.gates)
-        say("sanity gates")
-        problems = gates.evaluate(con, settings, summary)
-    target = checked_path or workspace.private_path(settings, workspace.CHECKED)
-    say("writing checked tables")
-    try:
-        con.execute("ATTACH ? AS out", [str(target)])
-        for name in PERSISTED:
-            con.execute(f"CREATE TABLE out.{q(name)} AS SELECT * FROM {q('accepted_' + name)}")
-        _write_rejects(con)
-        con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df")
-        con.execute("DETACH out")
-    except BaseException:
-        workspace.discard(target)
-        raise
-    if checked_path is None:
-        workspace.publish(settings, target, workspace.CHECKED)
+        with timings.step("sanity gates"):
+            problems = gates.evaluate(con, settings, summary)
+    with timings.step("examples of rejected rows"):
+        examples = _examples(con)
     rejects = con.execute("SELECT * FROM rejects_summary_df").df()
     warnings = con.execute(
         "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
     ).df()
-    examples = con.execute(
+    result = CheckResult(summary, rejects, warnings, problems, fp, 0.0, examples, checked_at=now.isoformat())
+    target = checked_path or workspace.private_path(settings, workspace.CHECKED)
+    with timings.step("writing checked tables") as step:
+        try:
+            con.execute("ATTACH ? AS out", [str(target)])
+            for name in PERSISTED:
+                con.execute(f"CREATE TABLE out.{q(name)} AS SELECT * FROM {q('accepted_' + name)}")
+            step.rows = _write_rejects(con)
+            con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df")
+            _write_meta(con, result)
+            con.execute("DETACH out")
+        except BaseException:
+            workspace.discard(target)
+            raise
+    if checked_path is None:
+        workspace.publish(settings, target, workspace.CHECKED)
+    result.steps = timings.records()[first_step:]
+    result.seconds = time.perf_counter() - started
+    return result
+
+
+# --- reusing a fresh check -------------------------------------------------------------------------
+
+# A build reuses the published check when it was made from the same export, mappings, check
+# settings, rules and code (the check fingerprint) this long ago at most: the horizon and
+# future-timestamp rules are relative to the moment a check runs, so an older check is run again.
+REUSE_SECONDS = 3600
+META_TABLE = "meta.check"
+
+
+def _write_meta(con, result: CheckResult) -> None:
+    """``meta.check`` in the checked file: what a later build needs to reuse this check."""
+    examples = result.examples if result.examples is not None else pd.DataFrame()
+    meta = {"fingerprint": result.fingerprint, "checked_at": result.checked_at, "usable": result.usable,
+            "problems": result.problems, "examples": {"columns": list(examples.columns),
+                                                      "rows": examples.astype(object).values.tolist()}}
+    con.execute("CREATE SCHEMA out.meta")
+    con.execute(f"CREATE TABLE out.{META_TABLE} (fingerprint VARCHAR, record VARCHAR)")
+    con.execute(f"INSERT INTO out.{META_TABLE} VALUES (?, ?)", [result.fingerprint, json.dumps(meta, default=str)])
+
+
+def reusable(settings: Settings, fingerprint: str, now: dt.datetime | None = None) -> dict | None:
+    """The published check's record when a build may use it instead of checking again: made
+    from the same inputs and settings (``fingerprint``), usable, and at most ``REUSE_SECONDS`` old.
+    None otherwise."""
+    path = workspace.path(settings, workspace.CHECKED)
+    if not path.exists():
+        return None
+    try:
+        con = duckdb.connect(str(path), read_only=True)
+    except duckdb.Error:
+        return None
+    try:
+        rows = con.execute(f"SELECT record FROM {META_TABLE} WHERE fingerprint = ?", [fingerprint]).fetchall()
+    except duckdb.Error:
+        return None  # a checked file written before meta.check existed
+    finally:
+        con.close()
+    if not rows:
+        return None
+    meta = json.loads(rows[0][0])
+    try:
+        age = ((now or dt.datetime.now(dt.timezone.utc).replace(tzinfo=None))
+               - dt.datetime.fromisoformat(meta["checked_at"])).total_seconds()
+    except (KeyError, TypeError, ValueError):
+        return None
+    if not meta.get("usable") or not 0 <= age <= REUSE_SECONDS:
+        return None
+    return {**meta, "path": str(path)}
+
+
+def reuse(con, settings: Settings, meta: dict, timings: Timings | None = None) -> CheckResult | None:
+    """Take a fresh check's results instead of running the rules again (see ``reusable``).
+
+    Stages the export on ``con`` and defines ``accepted_<table>`` as ``validate`` does: the order
+    lines from the export less the rows the check rejected (matched by file and row), the other
+    tables from the checked file, which stays attached as ``chk``. Returns None (and attaches
+    nothing) when the export read now does not have the rows the check read.
+    """
+    started = time.perf_counter()
+    timings = timings or Timings()
+    first_step = len(timings.steps)
+    infos = sources.register(con, settings, timings=timings)
+    with timings.step("accepted rows from the check") as step:
+        con.execute("ATTACH ? AS chk (READ_ONLY)", [meta["path"]])
+        summary = con.execute("SELECT * FROM chk.check_summary").df()
+        summary = summary.set_index("table").loc[[t for t in INPUT_TABLES if t in set(summary["table"])]].reset_index()
+        read = dict(zip(summary["table"], summary["rows_read"]))
+        if any(int(read.get(name, -1)) != info.rows for name, info in infos.items()):
+            con.execute("DETACH chk")
+            return None
+        for name in PERSISTED:
+            con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS SELECT * FROM chk.main.{q(name)}")
+        none_rejected = int(summary.loc[summary["table"] == "transactions", "rejected"].iloc[0]) == 0
+        con.execute(
+            "CREATE OR REPLACE TEMP VIEW accepted_transactions AS " + _accepted_select(
+                con, "transactions", "" if none_rejected else (
+                    "ANTI JOIN chk.main.rejected_rows AS r ON r.table_name = 'transactions' "
+                    "AND r.row_id = s._file_row AND r.source_file = s._source_file")))
+        # accepted + rejected = read, verified again on the rows read now.
+        kept = scalar(con, "SELECT count(*) FROM accepted_transactions")
+        expected = int(summary.loc[summary["table"] == "transactions", "accepted"].iloc[0])
+        if kept != expected:
+            con.execute("DETACH chk")
+            return None
+        step.rows = int(kept)
+    rejects = con.execute("SELECT * FROM chk.rejects_summary ORDER BY 1, 2").df()
+    warnings = con.execute("SELECT * FROM chk.warnings_summary ORDER BY 1, 2").df()
+    examples = pd.DataFrame(meta["examples"]["rows"], columns=meta["examples"]["columns"])
+    result = CheckResult(summary, rejects, warnings, list(meta["problems"]), meta["fingerprint"],
+                         time.perf_counter() - started, examples, timings.records()[first_step:],
+                         checked_at=meta["checked_at"], reused_from=meta["checked_at"])
+    return result
+
+
+def _examples(con) -> pd.DataFrame:
+    """Up to 3 rejected rows per table and reason, with their file and original values."""
+    return con.execute(
         "SELECT table_name AS \"table\", reason, row_id, source_file, detail, raw_values FROM ("
         "SELECT r.table_name, r.reason, s._file_row AS row_id, s._source_file AS source_file, r.detail, s._raw_values AS raw_values, "
         "row_number() OVER (PARTITION BY r.table_name, r.reason ORDER BY r._row_id) AS n "
         "FROM rejected AS r INNER JOIN staged_all_sources AS s ON r.table_name = s.table_name AND r._row_id = s._row_id"
         ") WHERE n <= 3 ORDER BY 1, 2, 3"
     ).df()
-    return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started, examples)
+
+
+def _inserted(result) -> int | None:
+    """The row count an INSERT reports (None when the engine reports none)."""
+    try:
+        rows = result.fetchall()
+    except Exception:  # noqa: BLE001 - an engine without a count
+        return None
+    if rows and len(rows[0]) == 1 and isinstance(rows[0][0], int):
+        return int(rows[0][0])
+    return None
 
 
 def _summary(con, infos: dict) -> pd.DataFrame:
@@ -334,7 +491,8 @@ def _summary(con, infos: dict) -> pd.DataFrame:
     return summary
 
 
-def _write_rejects(con) -> None:
+def _write_rejects(con) -> int:
+    """Write the rejected and warned rows and their summaries to ``out``; returns the rejected rows."""
     parts = []
     for name in INPUT_TABLES:
         parts.append(
@@ -354,6 +512,7 @@ def _write_rejects(con) -> None:
         f"FROM warned) AS w INNER JOIN staged_all_sources AS s ON w.table_name = s.table_name AND w._row_id = s._row_id "
         f"WHERE w.n <= {WARNING_EXAMPLES}"
     )
+    return int(scalar(con, "SELECT count(*) FROM out.rejected_rows"))
 
 
 # A configured table with rows but none accepted makes the export unusable. Assignments are

@@ -11,14 +11,85 @@ from pathlib import Path
 
 from rich.console import Console
 from rich.markup import escape
+from rich.progress import Progress, ProgressColumn, SpinnerColumn, TextColumn
 from rich.table import Table
+from rich.text import Text
 
 console = Console(stderr=False, highlight=False, soft_wrap=True)
 err_console = Console(stderr=True, highlight=False, soft_wrap=True)
 
 
+class _Seconds(ProgressColumn):
+    """A step's elapsed seconds: counting while it runs, its total once done."""
+
+    def render(self, task) -> Text:
+        seconds = task.finished_time if task.finished else task.elapsed
+        return Text(f"{seconds or 0.0:7.1f} s", style="progress.elapsed")
+
+
+class StepProgress:
+    """Progress of `check` and `build` on an interactive terminal: the running step (reading a
+    table, a check rule, a panel, writing) and the last steps done, each with its rows where known
+    and its seconds; cleared when the command ends. Silent when the output is not a terminal
+    (tests, CI, logs). The full list of timings is in the workspace's ``manifest.json``.
+
+    A watcher for ``toolkit.steps.Timings``: use as a context manager and pass it as ``watcher``.
+    """
+
+    SHOWN_DONE = 6  # finished steps kept on screen (the display stays a few lines high)
+
+    def __init__(self, console: Console | None = None):
+        self.console = console or err_console
+        self.progress = self._display()
+        self._task = None
+        self._done: list = []
+
+    def _display(self) -> Progress:
+        return Progress(
+            SpinnerColumn(finished_text="[green]✓[/]"), TextColumn("{task.description}"),
+            TextColumn("{task.fields[rows]}", justify="right"), _Seconds(),
+            console=self.console, transient=True, disable=not self.console.is_terminal,
+        )
+
+    def __enter__(self) -> "StepProgress":
+        self.progress.start()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.progress.stop()
+
+    def paused(self, show):
+        """``show`` as a callable that prints with the display cleared (then shown again), so that
+        a table printed mid-command is not mixed with the progress lines."""
+        def call(*args, **kwargs):
+            self.progress.stop()
+            try:
+                return show(*args, **kwargs)
+            finally:
+                # A new display below what was printed (between steps: no step is running).
+                self.progress, self._task, self._done = self._display(), None, []
+                self.progress.start()
+        return call
+
+    def started(self, step) -> None:
+        rows = f"{step.rows:,} rows" if step.rows is not None else ""
+        self._task = self.progress.add_task(escape(step.name), total=1, rows=rows)
+
+    def finished(self, step) -> None:
+        if self._task is None:
+            return
+        rows = f"{step.rows:,} rows" if step.rows is not None else ""
+        self.progress.update(self._task, completed=1, rows=rows)
+        self._done.append(self._task)
+        self._task = None
+        while len(self._done) > self.SHOWN_DONE:
+            self.progress.remove_task(self._done.pop(0))
+
+
 def print_check(result) -> None:
-    table = Table(title=f"check ({result.seconds:.1f} s)", show_lines=False)
+    when = f"reused from the check at {result.reused_from[:19]} UTC" if getattr(result, "reused_from", None) \
+        else f"{result.seconds:.1f} s"
+    table = Table(title=f"check ({when})", show_lines=False)
     for col in ("table", "read", "accepted", "rejected", "warnings"):
         table.add_column(col, justify="left" if col == "table" else "right")
     for row in result.summary.itertuples():
@@ -70,14 +141,12 @@ def run_build(settings, force: bool = False, *, wait: float | None = None):
     from . import panels
 
     started = time.perf_counter()
-    with console.status("building…") as status:
-        def progress(step, detail=""):
-            status.update(f"{step}: {escape(detail)}")
-
+    with StepProgress() as watcher:
         def notify(text):
             err_console.print(f"[yellow]note:[/] {escape(text)}")
 
-        result = panels.build(settings, force=force, progress=progress, on_check=print_check, notify=notify, wait=wait)
+        result = panels.build(settings, force=force, watcher=watcher, on_check=watcher.paused(print_check),
+                              notify=notify, wait=wait)
     if result.skipped:
         console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
     else:

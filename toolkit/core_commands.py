@@ -9,7 +9,7 @@ from pathlib import Path
 
 from rich.markup import escape
 
-from .console import console, err_console, print_check, run_build
+from .console import StepProgress, console, err_console, print_check, run_build
 from .errors import ConfigError
 
 
@@ -55,8 +55,8 @@ def cmd_check(args) -> int:
         from .results import check_out_dir
 
         check_out_dir(args.out)
-    with console.status("checking the export…") as status:
-        result = checks.run(settings, progress=lambda text: status.update(f"check: {escape(text)}"),
+    with StepProgress() as watcher:
+        result = checks.run(settings, watcher=watcher,
                             notify=lambda text: err_console.print(f"[yellow]note:[/] {escape(text)}"))
     print_check(result)
     if args.out:

@@ -25,6 +25,7 @@ from .engine.duckdb import connect as engine_connect
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError, DataWarning
+from .steps import Timings
 
 PANELS_DIR = sqlfiles.folder("panels")
 PANEL_ORDER: tuple[str, ...] = tuple(PANELS)  # orders, customer_periods, purchase_gaps, campaign_windows, customer_quarters
@@ -60,6 +61,7 @@ class BuildResult:
     check: checks.CheckResult | None = None
     fingerprint: str = ""
     reasons: list[str] = field(default_factory=list)  # why it was built (empty when skipped)
+    steps: list[dict] = field(default_factory=list)  # per step: step, seconds, rows (toolkit.steps)
     taken_over: dict | None = None  # the holder of a stale lock this build took over
 
 
@@ -69,7 +71,7 @@ def build_fingerprint(settings: Settings) -> str:
 
 
 def build(settings: Settings, *, force: bool = False, progress=None, on_check=None, notify=None,
-          wait: float | None = None, command: str | None = None) -> BuildResult:
+          wait: float | None = None, command: str | None = None, watcher=None) -> BuildResult:
     """Check the export and build every panel into ``panels.duckdb``, in one pass over the files.
 
     Holds the workspace lock throughout (waiting up to ``wait`` seconds, default
@@ -84,7 +86,7 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
     force : bool, default=False
         Rebuild even when nothing has changed.
     progress : callable, optional
-        Called with ``(step, detail)`` as work proceeds (steps: check, panel, publish).
+        Called with ``(step, detail)`` as each step starts (steps: check, panel, publish).
     on_check : callable, optional
         Called with the CheckResult as soon as the check is done, also when the build then fails.
     notify : callable, optional
@@ -93,6 +95,9 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
         Seconds to wait for the workspace lock.
     command : str, optional
         The command recorded as the lock's holder and in state.json.
+    watcher : object, optional
+        Told when each step starts and ends (``started(step)``, ``finished(step)``; see
+        ``toolkit.steps``): the terminal's progress display.
 
     Raises
     ------
@@ -126,7 +131,7 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
                 return BuildResult(skipped=True, rows=published.get("rows", {}), fingerprint=fp, taken_over=taken_over)
             reasons = ["forced (--force)"] if force else freshness.differences(
                 published.get("record") if published else None, record)
-            result = _build(settings, record, fp, track, on_check, command)
+            result = _build(settings, record, fp, track, on_check, command, watcher=watcher, force=force)
             result.reasons, result.taken_over = reasons, taken_over
             return result
         except BaseException as exc:
@@ -152,8 +157,32 @@ def _is_interrupt(exc: BaseException) -> bool:
     return isinstance(exc, (duckdb.Error, RuntimeError)) and "interrupted" in str(exc).lower()
 
 
-def _build(settings: Settings, record: dict, fp: str, say, on_check, command: str) -> BuildResult:
-    """The build proper, under the lock: check, panels, publish."""
+class _BuildWatcher:
+    """Passes each step to the build's ``progress(kind, detail)`` (and so to the failure record)
+    and to the caller's watcher."""
+
+    def __init__(self, say, watcher=None):
+        self.say, self.watcher = say, watcher
+
+    def started(self, step) -> None:
+        kind, _, detail = step.name.partition(" ")
+        if kind in ("panel", "publish"):
+            self.say(kind, detail)
+        else:
+            self.say("check", step.name)
+        call = getattr(self.watcher, "started", None)
+        if call is not None:
+            call(step)
+
+    def finished(self, step) -> None:
+        call = getattr(self.watcher, "finished", None)
+        if call is not None:
+            call(step)
+
+
+def _build(settings: Settings, record: dict, fp: str, say, on_check, command: str, watcher=None,
+           force: bool = False) -> BuildResult:
+    """The build proper, under the lock: check (or reuse a fresh one), panels, publish."""
     if settings.economics.margin_rate is None and "products" not in settings.tables:
         warnings.warn(
             f"{settings.config_path}: no products table and no economics.margin_rate: margins "
@@ -162,15 +191,22 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         )
     started_at = workspace.now()
     started = time.perf_counter()
+    timings = Timings(_BuildWatcher(say, watcher))
     result = BuildResult(skipped=False, fingerprint=fp)
-    checked_private = workspace.private_path(settings, workspace.CHECKED)
+    check_fp = freshness.check_fingerprint(record)
+    checked_published = workspace.path(settings, workspace.CHECKED)
+    reuse = None if force else checks.reusable(settings, check_fp)
+    checked_private = None if reuse else workspace.private_path(settings, workspace.CHECKED)
     panels_private = workspace.private_path(settings, workspace.PANELS)
     checked_done = False
     con = engine_connect(settings)
     try:
-        result.check = checks.validate(con, settings, progress=lambda text: say("check", text),
-                                       checked_path=checked_private,
-                                       fingerprint=freshness.check_fingerprint(record))
+        if reuse:
+            result.check = checks.reuse(con, settings, reuse, timings=timings)
+        if result.check is None:
+            checked_private = checked_private or workspace.private_path(settings, workspace.CHECKED)
+            result.check = checks.validate(con, settings, checked_path=checked_private, fingerprint=check_fp,
+                                           timings=timings)
         checked_done = True
         if on_check is not None:
             on_check(result.check)
@@ -184,28 +220,34 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         con.execute("ATTACH ? AS out", [str(panels_private)])
         con.execute("SET search_path = 'out.main'")
         for name in PANEL_ORDER:
-            say("panel", name)
-            t0 = time.perf_counter()
-            con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
-            result.seconds[name] = round(time.perf_counter() - t0, 3)
-            result.rows[name] = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
-        say("publish", "checked inputs and build record")
-        con.execute("SET search_path = 'memory.main'")
-        # The checked inputs travel with the panels, so that a reader sees one build, whole.
-        con.execute("ATTACH ? AS chk (READ_ONLY)", [str(checked_private)])
-        con.execute("CREATE SCHEMA out.checked")
-        for (table,) in con.execute(
-                "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' ORDER BY 1").fetchall():
-            con.execute(f"CREATE TABLE out.checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
-        con.execute("DETACH chk")
+            with timings.step(f"panel {name}") as step:
+                con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
+                result.rows[name] = step.rows = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
+            result.seconds[name] = step.seconds
+        with timings.step("publish checked inputs and build record"):
+            con.execute("SET search_path = 'memory.main'")
+            # The checked inputs travel with the panels, so that a reader sees one build, whole.
+            source = checked_private if checked_private is not None else checked_published
+            if result.check.reused_from is not None:
+                con.execute("DETACH chk")  # attached by checks.reuse
+            con.execute("ATTACH ? AS chk (READ_ONLY)", [str(source)])
+            con.execute("CREATE SCHEMA out.checked")
+            for (table,) in con.execute(
+                    "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' AND schema_name = 'main' "
+                    "ORDER BY 1").fetchall():
+                con.execute(f"CREATE TABLE out.checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
+            con.execute("DETACH chk")
+        result.steps = timings.records()
         build = {
             "fingerprint": fp,
-            "check_fingerprint": freshness.check_fingerprint(record),
+            "check_fingerprint": check_fp,
             "started_at": started_at,
             "finished_at": workspace.now(),
             "seconds": round(time.perf_counter() - started, 2),
             "rows": result.rows,
             "panel_seconds": result.seconds,
+            "steps": result.steps,
+            "check_reused_from": result.check.reused_from,
             "command": command,
             "version": record["version"],
             "record": record,
@@ -217,23 +259,28 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     except BaseException:
         con.close()
         workspace.discard(panels_private)
-        if checked_done:
-            # The failed check's rejects are for people to read (analyses never read this file).
-            workspace.publish(settings, checked_private, workspace.CHECKED)
-        else:
-            workspace.discard(checked_private)
+        if checked_private is not None:
+            if checked_done:
+                # The failed check's rejects are for people to read (analyses never read this file).
+                workspace.publish(settings, checked_private, workspace.CHECKED)
+            else:
+                workspace.discard(checked_private)
         raise
     con.close()
     workspace.publish(settings, panels_private, workspace.PANELS)  # the commit point
-    workspace.publish(settings, checked_private, workspace.CHECKED)
+    if checked_private is not None:
+        workspace.publish(settings, checked_private, workspace.CHECKED)
     state = workspace.read_state(settings)
     state.pop("failed", None)
-    state["build"] = {k: v for k, v in build.items() if k != "record"}
+    state["build"] = {k: v for k, v in build.items() if k not in ("record", "steps")}
     state["build"]["panels"] = {name: {**record["panels"][name], "rows": result.rows[name],
                                        "seconds": result.seconds[name]} for name in PANEL_ORDER}
     state["build"]["inputs"] = record["inputs"]
     state["check"] = checks.state_entry(result.check)
     workspace.write_state(settings, state)
+    workspace.write_manifest(settings, "build", {k: build[k] for k in (
+        "fingerprint", "check_fingerprint", "started_at", "finished_at", "seconds", "rows", "steps",
+        "check_reused_from", "command", "version")})
     return result
 
 

@@ -283,8 +283,11 @@ def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     )
 
 
-def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) -> dict[str, SourceInfo]:
+def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, timings=None) -> dict[str, SourceInfo]:
     """Read every configured table, in one pass, into ``stage_<table>``; define ``staged_<table>``.
+
+    ``progress`` is called with "reading <table>" before each table is read; ``timings``
+    (``toolkit.steps.Timings``) records each read as step "read <table>", with its rows.
 
     Raises
     ------
@@ -310,6 +313,7 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         extras = [c for c in found if c not in mapped and c not in READER_COLUMNS] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
+        step = timings.begin(f"read {name}") if timings is not None else None
         # Parquet is read again by each step that needs it (a scan costs less than holding tens
         # of millions of rows); its rows are keyed by file and row number. CSV and DuckDB tables
         # are read once into a temporary table, keyed by its row number; rows keep file order,
@@ -330,6 +334,8 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         finally:
             con.execute("SET preserve_insertion_order = false")
         _define_staged_view(con, contract, extras, lazy=lazy)
+        if step is not None:
+            timings.end(step, rows=int(rows))
         infos[name] = SourceInfo(name, tuple(files), int(rows), tuple(found), tuple(extras))
     return infos
 

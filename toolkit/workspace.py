@@ -9,6 +9,8 @@ Layout (``[workspace] path``, default ``.liftlag`` beside the config)::
                       lines), rejected_rows, warning_rows, summaries (written by `check` and by
                       every `build`, also one that then fails)
     state.json        the last good build, the last failure (when and why), the last check
+    manifest.json     timings of the last `check` and the last `build`: per step (reading a table,
+                      each check rule, each panel, writing) its seconds and rows (toolkit.steps)
     build.lock        the writers' lock, and build.lock.json: who holds it (toolkit.lock)
     tmp/<host>-<pid>  DuckDB's spill folder of each process (unless [engine] temp_directory)
 
@@ -39,6 +41,7 @@ from .errors import AnalysisError
 CHECKED = "checked.duckdb"
 PANELS = "panels.duckdb"
 STATE = "state.json"
+MANIFEST = "manifest.json"
 META_TABLE = "meta.build"
 
 # Published builds that a reader may use although they are stale: workspace folder -> build
@@ -90,6 +93,28 @@ def fingerprint(*parts) -> str:
     for part in parts:
         digest.update(json.dumps(part, sort_keys=True, default=str).encode())
     return digest.hexdigest()[:20]
+
+
+def read_manifest(settings: Settings) -> dict:
+    """``manifest.json``: the last check's and the last build's timings ({} when there is none)."""
+    p = path(settings, MANIFEST)
+    if not p.exists():
+        return {}
+    try:
+        return json.loads(p.read_text())
+    except (OSError, json.JSONDecodeError):
+        return {}
+
+
+def write_manifest(settings: Settings, command: str, entry: dict) -> None:
+    """Record ``entry`` (fingerprint, seconds, ``steps``: [{step, seconds, rows}], ...) as the
+    last ``command`` ("check" or "build") in ``manifest.json``, replaced atomically (by the lock's holder)."""
+    manifest = read_manifest(settings)
+    manifest["tool"], manifest["version"] = "liftlag", __version__
+    manifest[command] = {**entry, "at": now()}
+    tmp = private_path(settings, MANIFEST)
+    tmp.write_text(json.dumps(manifest, indent=2, sort_keys=True, default=str))
+    os.replace(tmp, path(settings, MANIFEST))
 
 
 # --- private files and publishing ----------------------------------------------------------------
