@@ -1,6 +1,6 @@
 """Generate a demo-scenario export for the long-run benchmark: CUSTOMERS customers over 8 quarters.
 
-The demo scenario's ``learning`` variant (``toolkit.demo``) extended to the end of 2026, so
+The demo scenario (``all``, with learning customers) (``toolkit.demo``) extended to the end of 2026, so
 the history has 8 whole quarters (2025Q1-2026Q4) and 4 year-over-year pairs.
 
 Usage::
@@ -23,7 +23,7 @@ def main() -> None:
     parser.add_argument("--out", required=True)
     parser.add_argument("--seed", type=int, default=7)
     args = parser.parse_args()
-    scenario = Scenario.for_effects("learning", ends_on=date(2026, 12, 31), new_until=date(2026, 11, 30))
+    scenario = Scenario.for_effects("all", ends_on=date(2026, 12, 31), new_until=date(2026, 11, 30))
     started = time.perf_counter()
     config = generate(args.out, seed=args.seed, customers=args.customers, scenario=scenario)
     print(f"generated {args.customers:,} customers in {time.perf_counter() - started:.0f} s: {config}")

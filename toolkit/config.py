@@ -117,6 +117,7 @@ class LongrunSettings:
     broadcast_mask_after_days: int = 14
     broadcast_mask_before_days: int = 7
     broadcast_parameter_draws: int = 100
+    broadcast_controls: bool = True
 
 
 # Settings that take one of a few words.

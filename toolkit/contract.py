@@ -225,4 +225,12 @@ PANELS: dict[str, tuple[Column, ...]] = {
         Column("deal_orders", "BIGINT"),
         Column("max_depth", "DOUBLE", description="deepest discount of the quarter's purchases (0 if none)"),
     ),
+    "segment_days": (
+        Column("day_on", "DATE", description="one row per day x segment with an order line"),
+        Column("segment_kind", "VARCHAR", description="category (products.category) or channel (transactions.channel)"),
+        Column("segment", "VARCHAR", description="the category or channel"),
+        Column("orders", "BIGINT", description="orders with a purchased (not returned) line in the segment"),
+        Column("net_amount", "DOUBLE", description="net amount of the segment's lines, returns netted in"),
+        Column("deal_lines", "BIGINT", description="lines that carried a promotion_id"),
+    ),
 }

@@ -202,3 +202,21 @@ def test_customer_quarter_behaviour_matches_hand_computation(built):
     # c3 Q2: o9 alone (04-06, two lines, list missing on one line: list derived as net + discount = 20).
     c3 = got.loc[("c3", "2026Q2")]
     assert (c3["orders"], c3["lines"], c3["net_amount"], c3["list_amount"], c3["active_span_days"]) == (1, 2, 20.0, 20.0, 0)
+
+
+def test_segment_days_matches_hand_computation(built):
+    got = frame(built, "SELECT * FROM segment_days ORDER BY segment_kind, segment, day_on")
+    # Products: p1 tools, p2 seeds; the tiny export has no channel, so every row is a category.
+    assert set(got["segment_kind"]) == {"category"}
+    tools = got[got["segment"] == "tools"].set_index("day_on")
+    seeds = got[got["segment"] == "seeds"].set_index("day_on")
+    # tools: o7 (01-12), o1 (02-02, 20), o2 (03-03, 8, coupon PA), o6 (03-05), the return o4 (03-21), o9 (04-06)
+    assert len(tools) == 6 and len(seeds) == 6
+    day = pd.Timestamp
+    assert tools.loc[day("2026-03-03"), ["orders", "net_amount", "deal_lines"]].tolist() == [1, 8.0, 1]
+    # the return: no purchase, its amount netted in on its day
+    assert tools.loc[day("2026-03-21"), ["orders", "net_amount", "deal_lines"]].tolist() == [0, -10.0, 0]
+    # seeds: o3 (03-18, 9, sale PB) and o8 (03-17, 18, sale PB); o5 (02-20, 30) at full price
+    assert seeds.loc[day("2026-03-17"), ["orders", "net_amount", "deal_lines"]].tolist() == [1, 18.0, 1]
+    assert seeds.loc[day("2026-02-20"), ["orders", "net_amount", "deal_lines"]].tolist() == [1, 30.0, 0]
+    assert got["net_amount"].sum() == pytest.approx(frame(built, "SELECT sum(net_amount) AS s FROM orders")["s"][0])

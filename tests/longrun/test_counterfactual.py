@@ -155,3 +155,78 @@ def test_no_broadcast_promotion_gives_empty_tables_with_a_note(tmp_path):
     assert all(frame.empty for frame in tables.values())
     assert list(tables["broadcast_effects"].columns) == counterfactual.EFFECT_COLUMNS
     assert any("no broadcast promotion" in n for n in notes)
+
+
+def _shop_with_a_cold_spell(*, sitewide: bool):
+    """A shop of two categories over 250 days (common practice, no source): daily orders of
+    garden ~ Poisson(600 e^s) and home ~ Poisson(500 e^s), where s is a shock common to both (an
+    AR(1) day-to-day swing) and a cold spell lowers s by 0.35 over the 10 days of a broadcast sale
+    on garden (on both categories when ``sitewide``). The sale adds 250 garden orders a day: 2,500
+    in all. Returns an in-memory connection holding the panels the analysis reads."""
+    import duckdb
+
+    rng = np.random.default_rng(11)
+    days = pd.date_range("2025-06-02", periods=250, freq="D")
+    shock = np.zeros(len(days))
+    for i in range(1, len(days)):
+        shock[i] = 0.8 * shock[i - 1] + rng.normal(0, 0.08)
+    sale = slice(220, 230)
+    shock[sale] -= 0.35
+    garden = rng.poisson(600 * np.exp(shock))
+    home = rng.poisson(500 * np.exp(shock))
+    garden[sale] += 250
+    deal_garden = np.zeros(len(days), int)
+    deal_garden[sale] = garden[sale]
+    deal_home = np.zeros(len(days), int)
+    if sitewide:
+        deal_home[sale] = home[sale]
+    segments = pd.DataFrame({
+        "day_on": np.r_[days.date, days.date], "segment_kind": "category",
+        "segment": ["garden"] * len(days) + ["home"] * len(days),
+        "orders": np.r_[garden, home], "net_amount": 10.0 * np.r_[garden, home],
+        "deal_lines": np.r_[deal_garden, deal_home]})
+    orders = pd.DataFrame({"ordered_on": np.repeat(days.date, garden + home), "is_return": False, "net_amount": 10.0})
+    promotions = pd.DataFrame({"promotion_id": ["SALE"], "starts_at": [days[220]], "ends_at": [days[229]],
+                               "audience": ["broadcast"]})
+    con = duckdb.connect()
+    con.execute("ATTACH ':memory:' AS checked")
+    con.register("segments_frame", segments)
+    con.register("orders_frame", orders)
+    con.register("promotions_frame", promotions)
+    con.execute("CREATE TABLE segment_days AS SELECT CAST(day_on AS DATE) AS day_on, segment_kind, segment, "
+                "CAST(orders AS BIGINT) AS orders, net_amount, CAST(deal_lines AS BIGINT) AS deal_lines FROM segments_frame")
+    con.execute("CREATE TABLE orders AS SELECT CAST(ordered_on AS DATE) AS ordered_on, is_return, net_amount FROM orders_frame")
+    con.execute("CREATE TABLE checked.promotions AS SELECT * FROM promotions_frame")
+    return con
+
+
+def _broadcast(con, controls: bool):
+    import types
+
+    settings = types.SimpleNamespace(windows=types.SimpleNamespace(after_days=7), longrun=LongrunSettings(
+        broadcast_controls=controls, broadcast_parameter_draws=60))
+    tables, _ = counterfactual.analyse(con, settings, dt.date(2026, 2, 6))
+    effects = tables["broadcast_effects"].set_index(["outcome", "window"])
+    return effects.loc[("orders", "during")], tables["broadcast_notes"]
+
+
+def test_untouched_category_as_control_absorbs_a_shock_common_to_the_shop():
+    """With the home category (no promotion line during the sale) as a control series, the cold
+    spell is absorbed: the interval covers the planted 2,500 orders and excludes zero, and the
+    estimate is closer to 2,500 than the model's without controls, which reads the cold spell as
+    part of the sale's effect."""
+    con = _shop_with_a_cold_spell(sitewide=False)
+    with_controls, notes = _broadcast(con, controls=True)
+    without, _ = _broadcast(con, controls=False)
+    assert "categories without a promotion line during the sale (home)" in with_controls["method"]
+    assert with_controls["ci_low"] <= 2500 <= with_controls["ci_high"] and with_controls["ci_low"] > 0
+    assert abs(with_controls["estimate"] - 2500) < abs(without["estimate"] - 2500)
+    assert "control series" not in without["method"]
+    assert notes["note"].str.contains("purchases the sale drew into them make the estimate too small").any()
+
+
+def test_sitewide_sale_has_no_control_series_and_says_so():
+    con = _shop_with_a_cold_spell(sitewide=True)
+    during, notes = _broadcast(con, controls=True)
+    assert "control series" not in during["method"]
+    assert notes["note"].str.contains("no control series: the export names no product category").any()

@@ -1,11 +1,11 @@
 """Recovery of the demo's long-run truth, and no false alarm on its stationary variant.
 
-The demo's ``learning`` variant is the default demo (``all``) with learning customers; its truth
-(truth.json, ``mechanisms.learning``): every coupon a customer receives lowers
+The default demo (``all``) has learning customers; its truth (truth.json,
+``mechanisms.learning``): every coupon a customer receives lowers
 their purchase hazard by the factor exp(-learning_full_price_per_coupon) and raises the hazard
 ratio of their next coupons by exp(learning_coupon_per_coupon) (up to learning_cap coupons). So
 (1) discount dependence rises over the quarters against the same customers without learning (same
-seed, the default demo without learning: the counterfactual); (2) the responsiveness regression finds the
+seed, the ``no_learning`` variant: the counterfactual); (2) the responsiveness regression finds the
 full-price baseline falling and the coupon response rising; (3) a year later the customers can be
 told apart. The ``stationary`` variant (no learning, no new customers, the same campaign calendar
 every year) must give a year-over-year drift AUC whose interval includes 0.5 and a responsiveness
@@ -51,7 +51,7 @@ def _run(settings, module):
 
 @pytest.fixture(scope="module")
 def learning(tmp_path_factory):
-    return _build(tmp_path_factory, "learning", effects="learning")
+    return _build(tmp_path_factory, "learning", effects="all")
 
 
 @pytest.fixture(scope="module")
@@ -62,7 +62,7 @@ def stationary(tmp_path_factory):
 def test_dependence_rises_against_the_same_customers_without_learning(learning, tmp_path_factory):
     settings, truth = learning
     assert truth["mechanisms"]["learning"]["active"]
-    twin, twin_truth = _build(tmp_path_factory, "no_learning", effects="all")  # the same demo without learning
+    twin, twin_truth = _build(tmp_path_factory, "no_learning", effects="no_learning")  # the same demo without learning
     assert not twin_truth["mechanisms"]["learning"]["active"]
     with_learning = _run(settings, dependence)["dependence_by_quarter"].set_index("quarter")
     without = _run(twin, dependence)["dependence_by_quarter"].set_index("quarter")

@@ -57,3 +57,66 @@ def test_pairs_are_year_over_year_where_the_data_reaches_back_then_adjacent():
     assert [p for p in pairs if p[0] == "adjacent"][0] == ("adjacent", "2025Q3", "2025Q4")
     assert len(pairs) == 1 + 4
     assert _pairs(quarters, adjacent=False) == [("year_over_year", "2025Q3", "2026Q3")]
+
+
+def _behaviour_panel(con, order_by: str) -> None:
+    """A customer_quarter_behaviour panel of 1,200 customers over 5 quarters, stored in a given row order."""
+    con.execute(f"""
+        CREATE OR REPLACE TABLE customer_quarter_behaviour AS
+        WITH grid AS (
+            SELECT c, q FROM range(1200) AS a(c), range(5) AS b(q)
+            WHERE (c * 7 + q * 3) % 5 <> 0              -- not every customer buys every quarter
+        )
+        SELECT
+            'c' || lpad(CAST(c AS VARCHAR), 5, '0') AS customer_id,
+            CAST(2025 + q // 4 AS VARCHAR) || 'Q' || CAST(q % 4 + 1 AS VARCHAR) AS quarter,
+            CAST(make_date(2025 + q // 4, 3 * (q % 4) + 1, 1) AS DATE) AS quarter_on,
+            1 + (c * 13 + q) % 4 AS orders,
+            1 + (c * 13 + q) % 3 AS purchase_days,
+            1 + (c * 13 + q) % 3 AS purchase_weeks,
+            (c * 17 + q * 5) % 80 AS active_span_days,
+            CAST(2 + (c * 11 + q) % 6 AS BIGINT) AS lines,
+            CAST(3 + (c * 5 + q) % 7 AS DOUBLE) AS quantity,
+            20.0 + (c * 31 + q * 7) % 90 + 0.5 * q AS net_amount,
+            25.0 + (c * 31 + q * 7) % 90 + 0.5 * q AS list_amount,
+            5.0 * ((c + q) % 3) AS discount_amount,
+            ((c + q) % 3) * (1 + (c * 13 + q) % 4) // 3 AS deal_orders,
+            0.1 * ((c + 2 * q) % 4) AS max_depth
+        FROM grid
+        ORDER BY {order_by}
+    """)
+
+
+_TWICE = """
+import datetime as dt, sys, types
+import duckdb
+from toolkit.config import LongrunSettings, ReportSettings
+from toolkit.longrun import drift
+sys.path.insert(0, sys.argv[1])
+from test_drift import _behaviour_panel
+settings = types.SimpleNamespace(report=ReportSettings(), longrun=LongrunSettings(
+    bootstrap_rounds=30, drift_permutation_repeats=2, drift_folds=3, drift_adjacent=False))
+for run, order_by in enumerate(("customer_id, quarter_on", "md5(customer_id || quarter) DESC")):
+    con = duckdb.connect()
+    _behaviour_panel(con, order_by)
+    tables, _ = drift.analyse(con, settings, dt.date(2026, 3, 31))
+    for name, table in tables.items():
+        table.to_parquet(f"{sys.argv[2]}/{name}.{run}.parquet")
+    con.close()
+"""
+
+
+def test_drift_tables_are_the_same_on_a_second_run_and_in_any_row_order(tmp_path):
+    """The first analysis in a fresh process and a second one (the panel stored in another row
+    order) give identical tables, the feature ranking included: the classifier fits on one thread
+    both times (the first used to fit on every core, and near-tied importances then reordered)."""
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    subprocess.run([sys.executable, "-c", _TWICE, str(Path(__file__).parent), str(tmp_path)], check=True)
+    for name in ("population_drift", "population_drift_features"):
+        first = pd.read_parquet(tmp_path / f"{name}.0.parquet")
+        second = pd.read_parquet(tmp_path / f"{name}.1.parquet")
+        pd.testing.assert_frame_equal(first, second, check_exact=True, obj=name)
+    assert len(pd.read_parquet(tmp_path / "population_drift_features.0.parquet")) > 0

@@ -50,7 +50,7 @@ def generate(
         Seed of numpy's Generator; the same seed and settings give byte-identical files.
     customers : int, default=4000
         Number of customers.
-    effects : {"all", "uplift_only", "none", "stationary", "learning"}, default="all"
+    effects : {"all", "uplift_only", "none", "stationary", "no_learning"}, default="all"
         Which mechanisms are on (see :data:`toolkit.demo.scenario.EFFECTS`).
     scenario : Scenario, optional
         Full parameters; overrides ``effects`` when given.

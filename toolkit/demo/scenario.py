@@ -15,22 +15,24 @@ from typing import Any
 
 from ..errors import ConfigError
 
-EFFECTS = ("all", "uplift_only", "none", "stationary", "learning")
+EFFECTS = ("all", "uplift_only", "none", "stationary", "no_learning")
 """The scenario variants.
 
-``all``: every mechanism on. ``uplift_only``: the coupon and the broadcast sale still raise the
-purchase hazard, but there is no post-promotion dip and no anticipation (a data set on which a
-timing analysis must find nothing). ``none``: no mechanism at all; coupons and the sale change no
-one's behaviour (an A/A data set on which every effect must come out null). ``stationary``: coupons
-and the sale work as in ``all``, but nothing changes from one year to the next: no learning, no
-new customers, one campaign a quarter on the same dates each year, a coupon response that does
-not depend on the customer's purchase history, no anticipation (a data set on which the long-run
-drift analyses must find nothing). ``learning``: ``all``, and customers learn from the coupons
-they receive: their full-price hazard falls and their response to the next coupon rises, so
-discount dependence rises over the quarters (``LEARNING`` gives the rates).
+``all``: every mechanism on, including learning: customers learn from the coupons they receive
+(their full-price hazard falls and their response to the next coupon rises, so discount dependence
+rises over the quarters; ``LEARNING`` gives the rates). ``no_learning``: ``all`` without learning
+(the same customers, calendar and seed: the counterfactual the long-run truth tests compare
+against). ``uplift_only``: the coupon and the broadcast sale still raise the purchase hazard, but
+there is no post-promotion dip, no anticipation and no learning (a data set on which a timing
+analysis must find nothing). ``none``: no mechanism at all; coupons and the sale change no one's
+behaviour (an A/A data set on which every effect must come out null). ``stationary``: coupons and
+the sale work as in ``all``, but nothing changes from one year to the next: no learning, no new
+customers, one campaign a quarter on the same dates each year, a coupon response that does not
+depend on the customer's purchase history, no anticipation (a data set on which the long-run drift
+analyses must find nothing).
 """
 
-#: The learning rates of the ``learning`` variant (per coupon received).
+#: The learning rates of the default demo, ``all`` (per coupon received).
 LEARNING = {"learning_full_price_per_coupon": 0.03, "learning_coupon_per_coupon": 0.15}
 
 
@@ -241,10 +243,11 @@ class Scenario:
 
         Parameters
         ----------
-        effects : {"all", "uplift_only", "none", "stationary", "learning"}, default="all"
+        effects : {"all", "uplift_only", "none", "stationary", "no_learning"}, default="all"
             ``uplift_only`` sets the dip and anticipation hazard ratios to 1 and their day counts
             to 0 (and switches learning off); ``none`` also sets every coupon and broadcast hazard
-            ratio, and the welcome offer's rate factor, to 1; ``stationary`` and ``learning`` are described in
+            ratio, and the welcome offer's rate factor, to 1; ``all`` (with learning), ``no_learning`` and
+            ``stationary`` are described in
             :data:`EFFECTS`.
         **overrides
             Any field of :class:`Scenario`.
@@ -262,7 +265,7 @@ class Scenario:
         values: dict[str, Any] = {}
         if effects in ("uplift_only", "none"):
             values.update(post_promotion_dip_hr=1.0, dip_days=0, anticipation_hr=1.0, anticipation_days=0)
-        if effects == "learning":
+        if effects == "all":
             values.update(LEARNING)
         if effects == "stationary":
             values.update(

@@ -30,6 +30,15 @@ Placebo: the same model on a fake sale of the same length, on the latest stretch
 before the sale (fitted on the days before it): its interval should include zero. When it does
 not, the model's counterfactual is not to be trusted for this series.
 
+Control series (``[longrun] broadcast_controls``, on by default): from the panel ``segment_days``,
+the product categories (and, separately, the sales channels) none of whose lines carried a
+promotion during the sale's days are summed into one daily series per kind, and enter the model
+as regressors. They absorb shocks common to the whole shop (weather, a payday, a competitor's
+move) that the pre-period cannot foresee. They assume the sale did not move them: customers who
+come for the sale and also buy in an untouched category make the control rise with the sale, and
+the estimate then comes out too small (said in the notes). An export without categories or
+channels, or a sale on every category and channel (sitewide), has no control series.
+
 Assumptions (stated beside every result): no other shock in the window and the weeks after it
 (other than the listed promotions), a stable relation to the control series, and a pre-period
 that represents the baseline: patterns longer than a week that the pre-period does not show (a
@@ -351,6 +360,44 @@ def _daily(con, through_end: dt.date) -> pd.DataFrame:
     return frame.set_index("day_on")
 
 
+def _segments(con, through_end: dt.date) -> pd.DataFrame:
+    frame = con.cursor().execute(
+        "SELECT day_on, segment_kind, segment, orders, net_amount, deal_lines FROM segment_days WHERE day_on <= ?",
+        [through_end]).df()
+    frame["day_on"] = pd.to_datetime(frame["day_on"])
+    return frame
+
+
+def _controls(segments: pd.DataFrame, sale, index: pd.DatetimeIndex, column: str,
+              min_share_days: float = 0.5) -> tuple[pd.DataFrame | None, list[str]]:
+    """Control series for one sale and outcome: per segment kind, the daily sum of the segments
+    with no promotion line during the sale (None when there is none), and their description."""
+    if segments.empty:
+        return None, []
+    during = segments[(segments["day_on"] >= sale.starts_on) & (segments["day_on"] <= sale.ends_on)]
+    columns, described = {}, []
+    for kind in ("category", "channel"):
+        of_kind = segments[segments["segment_kind"] == kind]
+        if of_kind.empty:
+            continue
+        touched = set(during.loc[(during["segment_kind"] == kind) & (during["deal_lines"] > 0), "segment"])
+        untouched = sorted(set(of_kind["segment"]) - touched)
+        if not touched or not untouched:
+            continue
+        series = (of_kind[of_kind["segment"].isin(untouched)].groupby("day_on")[column].sum()
+                  .reindex(index, fill_value=0.0).astype(float))
+        before = series[index < sale.starts_on]
+        if len(before) == 0 or (before != 0).mean() < min_share_days:
+            continue  # too thin to be a series: more empty days than selling ones before the sale
+        columns[f"untouched_{kind}"] = series
+        shown = ", ".join(untouched[:5]) + (f" and {len(untouched) - 5} more" if len(untouched) > 5 else "")
+        plural = "categories" if kind == "category" else "channels"
+        described.append(f"{plural} without a promotion line during the sale ({shown})")
+    if not columns:
+        return None, []
+    return pd.DataFrame(columns, index=index), described
+
+
 def _windows_mask(index: pd.DatetimeIndex, promotions: pd.DataFrame, after_days: int, before_days: int = 0) -> pd.Series:
     """True on days inside any of ``promotions``' windows, the ``before_days`` before and the ``after_days`` after."""
     mask = np.zeros(len(index), bool)
@@ -390,6 +437,7 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
         notes.append(f"no broadcast promotion starts on or before {through_end}: the broadcast tables are empty")
         return empty, notes
     daily = _daily(con, through_end)
+    segments = _segments(con, through_end) if longrun.broadcast_controls else pd.DataFrame()
     effect_rows: list[dict] = []
     series_frames: list[pd.DataFrame] = []
     placebo_rows: list[dict] = []
@@ -421,11 +469,22 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
             y = frame[column].where(~masked)
             estimator = BroadcastCounterfactual(min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
                                         parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed))
+            controls, described = _controls(segments, sale, frame.index, column)
             method = ("structural time series: local level + weekly pattern (statsmodels UnobservedComponents, "
                       "maximum likelihood; Brodersen et al. 2015)")
+            if controls is not None:
+                method += "; control series: " + "; ".join(described)
+                if outcome == "orders":
+                    note_rows.append({"promotion_id": sale.promotion_id, "kind": "assumption", "note": (
+                        "control series (" + "; ".join(described) + ") are taken as untouched by the sale: "
+                        "purchases the sale drew into them make the estimate too small")})
+            elif longrun.broadcast_controls and outcome == "orders":
+                note_rows.append({"promotion_id": sale.promotion_id, "kind": "note", "note": (
+                    "no control series: the export names no product category or sales channel that the sale left "
+                    "without a promotion line")})
             try:
                 estimator.fit(y, starts_on=sale.starts_on, ends_on=min(sale.ends_on, pd.Timestamp(through_end)),
-                              after_days=after_days, excluded=inside_other)
+                              after_days=after_days, excluded=inside_other, controls=controls)
             except AnalysisError as exc:
                 for window in WINDOWS:
                     effect_rows.append({"promotion_id": sale.promotion_id, "outcome": outcome, "window": window,
@@ -441,7 +500,8 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
                     placebo = BroadcastCounterfactual(
                         min_pre_days=int(longrun.broadcast_min_pre_days), alpha=alpha,
                         parameter_draws=int(longrun.broadcast_parameter_draws), seed=int(longrun.seed),
-                    ).fit(placebo_y, starts_on=placebo_start, ends_on=fake_end, after_days=0)
+                    ).fit(placebo_y, starts_on=placebo_start, ends_on=fake_end, after_days=0,
+                          controls=None if controls is None else controls[controls.index <= fake_end])
                 except AnalysisError as exc:
                     placebo = None
                     note_rows.append({"promotion_id": sale.promotion_id, "kind": "warning",

@@ -132,7 +132,8 @@ class QuarterClassifier:
                                               "importance_sd": stacked.std(axis=1)})
         else:
             self.importances_ = pd.DataFrame({"feature": columns, "importance": np.nan, "importance_sd": np.nan})
-        self.importances_ = self.importances_.sort_values("importance", ascending=False, ignore_index=True)
+        self.importances_ = self.importances_.sort_values(["importance", "feature"], ascending=[False, True],
+                                                          kind="mergesort", ignore_index=True)
         self.n_from_, self.n_to_ = int(counts[0]), int(counts[1])
 
     def conf_int(self, alpha: float | None = None) -> tuple[float, float]:
@@ -249,7 +250,9 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
                                 f"{len(whole)} on or before {through_end}")
         _sql.run(cur, "longrun_drift_features", last_quarter_on=whole[-1],
                  sample_customers=int(longrun.drift_sample_customers), seed=int(longrun.seed))
-        features = cur.execute("SELECT * FROM longrun_drift_features").df()
+        # In a fixed order: the folds and the bootstrap draw by row, and DuckDB's parallel scan
+        # returns rows in any order, which made the feature ranking differ between runs.
+        features = cur.execute("SELECT * FROM longrun_drift_features ORDER BY quarter_on, customer_no").df()
         population = dict(cur.execute(
             "SELECT quarter, count(*) FROM customer_quarter_behaviour WHERE quarter_on <= ? GROUP BY quarter",
             [whole[-1]]).fetchall())
@@ -267,8 +270,12 @@ def analyse(con, settings, through_end: dt.date) -> tuple[dict[str, pd.DataFrame
               f"customer-cluster bootstrap interval ({longrun.bootstrap_rounds} rounds), permutation importance")
     if sampled:
         method += f"; seeded sample of up to {longrun.drift_sample_customers:,} customers per quarter"
+    import sklearn.ensemble  # noqa: F401  (loads the OpenMP runtime first: threadpool_limits only reaches loaded ones)
     from threadpoolctl import threadpool_limits
 
+    # One thread, always: the first analysis in a process used to fit on every core (OpenMP was
+    # not loaded yet when the limit was set) and later ones on one, and multi-threaded histogram
+    # sums differ in the last bits, which reordered near-tied feature importances between runs.
     limiter = threadpool_limits(limits=1)  # small fits: OpenMP threads contending on a busy machine cost more than they give
     try:
         rows, importance_rows = _compare(pairs, features, longrun, small_cell, level, method)
