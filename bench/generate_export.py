@@ -79,7 +79,9 @@ class Promotions:
         return np.flatnonzero(self.audience == "targeted")
 
 
-def make_promotions(rng: np.random.Generator, n_targeted: int = 12, n_broadcast: int = 8) -> Promotions:
+def make_promotions(
+    rng: np.random.Generator, n_targeted: int = 12, n_broadcast: int = 8, *, export_days: int = EXPORT_DAYS
+) -> Promotions:
     """Draw a calendar of targeted coupons and broadcast sales over the export's span."""
     n = n_targeted + n_broadcast
     audience = np.array(["targeted"] * n_targeted + ["broadcast"] * n_broadcast)
@@ -87,7 +89,7 @@ def make_promotions(rng: np.random.Generator, n_targeted: int = 12, n_broadcast:
     depth = np.full(n, np.nan)
     days = np.where(audience == "targeted", rng.integers(14, 29, n), rng.integers(4, 15, n))
     # Start at least 60 days in (so campaigns have a pre-period) and end inside the export.
-    start_day = np.array([rng.integers(60, EXPORT_DAYS - d - 1) for d in days])
+    start_day = np.array([rng.integers(60, export_days - d - 1) for d in days])
     kinds = rng.choice(["percent_off", "amount_off", "free_shipping", "bundle"], n, p=[0.55, 0.25, 0.1, 0.1])
     for i, kind in enumerate(kinds):
         mechanic[i] = kind
@@ -127,7 +129,9 @@ class Customers:
     order_offset: np.ndarray  # int64, index of the customer's first order (length n + 1)
 
 
-def make_customers(rng: np.random.Generator, lines: int) -> tuple[Customers, np.ndarray]:
+def make_customers(
+    rng: np.random.Generator, lines: int, *, export_days: int = EXPORT_DAYS
+) -> tuple[Customers, np.ndarray]:
     """Draw customers and the size of each of their orders so that they hold at least ``lines`` lines.
 
     Returns the customers and the order sizes (int8, one per order, customer-major).
@@ -135,9 +139,9 @@ def make_customers(rng: np.random.Generator, lines: int) -> tuple[Customers, np.
     n_customers = max(1, int(round(lines / LINES_PER_CUSTOMER)))
     # 60 % are customers from before the export starts, the rest join uniformly over 80 % of it.
     join_day = np.where(
-        rng.random(n_customers) < 0.6, 0, rng.integers(0, int(EXPORT_DAYS * 0.8), n_customers)
+        rng.random(n_customers) < 0.6, 0, rng.integers(0, int(export_days * 0.8), n_customers)
     ).astype(np.int32)
-    active_share = (EXPORT_DAYS - join_day) / EXPORT_DAYS
+    active_share = (export_days - join_day) / export_days
     rate = rng.gamma(shape=0.7, scale=1 / 0.7, size=n_customers)  # mean 1, skewed
     deal_propensity = rng.beta(0.6, 5.4, n_customers).astype(np.float32)  # mean 0.1
     mean_size = float(ORDER_SIZES @ ORDER_SIZE_P)
@@ -233,6 +237,7 @@ def make_chunk(
     campaigns: list,
     catalogue: Catalogue,
     max_lines: int,
+    export_days: int = EXPORT_DAYS,
 ) -> pa.Table:
     """Order lines of customers ``first`` to ``last - 1``, at most ``max_lines`` of them, sorted by time."""
     rng = np.random.default_rng([seed, 1, chunk_index])
@@ -240,7 +245,7 @@ def make_chunk(
     n_orders = o1 - o0
     order_customer = np.repeat(np.arange(first, last, dtype=np.int64), customers.n_orders[first:last])
     join = customers.join_day[order_customer]
-    order_day = join + (rng.random(n_orders) * (EXPORT_DAYS - join)).astype(np.int32)
+    order_day = join + (rng.random(n_orders) * (export_days - join)).astype(np.int32)
     order_promo = np.full(n_orders, -1, dtype=np.int16)
 
     # Deal orders: moved into a broadcast sale's window (a sales bump), when the customer is seen by then.
@@ -433,8 +438,13 @@ def generate(
     threads: int = 2,
     memory_limit: str | None = None,
     margin_rate: float = 0.38,
+    days: int = EXPORT_DAYS,
 ) -> dict:
-    """Write the export to ``out`` and return a summary of what was written."""
+    """Write the export to ``out`` and return a summary of what was written.
+
+    ``days`` is the export's span from 2025-01-01 (547: 18 months; 730: 8 whole quarters, the
+    long-run benchmark's shape).
+    """
     started = time.perf_counter()
     rng = np.random.default_rng(seed)
     out.mkdir(parents=True, exist_ok=True)
@@ -443,8 +453,8 @@ def generate(
     for old in tx_dir.glob("*.parquet"):
         old.unlink()
 
-    promotions = make_promotions(rng)
-    customers, sizes = make_customers(rng, lines)
+    promotions = make_promotions(rng, export_days=days)
+    customers, sizes = make_customers(rng, lines, export_days=days)
     catalogue = make_catalogue(rng)
     campaigns, n_assignments = make_assignments(rng, promotions, customers)
 
@@ -471,6 +481,7 @@ def generate(
             campaigns=campaigns,
             catalogue=catalogue,
             max_lines=lines - written,
+            export_days=days,
         )
         if writer is None:
             writer = pq.ParquetWriter(tx_dir / f"part-{files:04d}.parquet", SCHEMA, compression="snappy")
@@ -501,6 +512,7 @@ def generate(
         "targeted_promotions": len(promotions.targeted),
         "assignment_rows": n_assignments,
         "seed": seed,
+        "days": days,
         "seconds": round(time.perf_counter() - started, 1),
     }
     (out / "generation.json").write_text(json.dumps(summary, indent=2) + "\n")
@@ -517,9 +529,15 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--threads", type=int, default=2, help="[engine] threads in the config")
     parser.add_argument("--memory-limit", default=None, help='[engine] memory_limit in the config, e.g. "1GB"')
     parser.add_argument("--margin-rate", type=float, default=0.38)
+    parser.add_argument(
+        "--days", type=int, default=EXPORT_DAYS,
+        help="span from 2025-01-01 in days (default 547, 18 months; 730 gives 8 whole quarters)",
+    )
     args = parser.parse_args(argv)
     if args.lines < 1:
         parser.error("--lines must be at least 1")
+    if args.days < 120:
+        parser.error("--days must be at least 120 (promotions start 60 days in)")
     summary = generate(
         lines=args.lines,
         out=args.out,
@@ -529,6 +547,7 @@ def main(argv: list[str] | None = None) -> int:
         threads=args.threads,
         memory_limit=args.memory_limit,
         margin_rate=args.margin_rate,
+        days=args.days,
     )
     print(json.dumps(summary))
     return 0
