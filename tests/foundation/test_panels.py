@@ -220,3 +220,19 @@ def test_segment_days_matches_hand_computation(built):
     assert seeds.loc[day("2026-03-17"), ["orders", "net_amount", "deal_lines"]].tolist() == [1, 18.0, 1]
     assert seeds.loc[day("2026-02-20"), ["orders", "net_amount", "deal_lines"]].tolist() == [1, 30.0, 0]
     assert got["net_amount"].sum() == pytest.approx(frame(built, "SELECT sum(net_amount) AS s FROM orders")["s"][0])
+
+
+def test_an_order_whose_lines_cancel_to_the_cent_is_not_a_return(tmp_path):
+    """59.94 + 89.02 - 148.96 is 0 to the cent; in floating point it is 0.0 or about -3e-14
+    depending on the order of the sum. Either way the order is not a return."""
+    from tests.conftest import TINY_TRANSACTIONS
+
+    extra = [["o10", "c2", "2026-04-07 10:00:00", "p1", "1", "59.94", "59.94", "0", ""],
+             ["o10", "c2", "2026-04-07 10:00:00", "p2", "1", "89.02", "89.02", "0", ""],
+             ["o10", "c2", "2026-04-07 10:00:00", "p1", "-1", "-148.96", "-148.96", "0", ""]]
+    settings = config.load(write_export(tmp_path / "export", transactions=TINY_TRANSACTIONS + extra))
+    panels.build(settings)
+    con = duckdb.connect(str(workspace.path(settings, workspace.PANELS)), read_only=True)
+    row = con.execute("SELECT net_amount, is_return FROM orders WHERE order_id = 'o10'").fetchall()
+    con.close()
+    assert abs(row[0][0]) < 1e-9 and row[0][1] is False
