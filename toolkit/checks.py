@@ -19,7 +19,7 @@ import pandas as pd
 from . import sources, workspace
 from .config import Settings
 from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
-from .engine.duckdb import connect as engine_connect
+from .engine import open_engine
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError
@@ -119,13 +119,14 @@ def _typed_attribute(con, table: str, column: str) -> str:
     TIMESTAMP; anything else stays text. (0/1 stays a number: it may be a count.)
     """
     col = q(column)
-    if scalar(con, f"SELECT typeof({col}) FROM {q('staged_' + table)} LIMIT 1") != "VARCHAR":
+    types = dict((r[0], r[1]) for r in con.execute(f"DESCRIBE {q('staged_' + table)}").fetchall())
+    if types.get(column) != "VARCHAR":
         return col
     value = f"NULLIF(trim({col}), '')"
     tests = (
         ("BOOLEAN", f"lower({value}) IN ('true', 'false')"),
         ("BIGINT", f"regexp_full_match({value}, '[+-]?[0-9]+') AND TRY_CAST({value} AS BIGINT) IS NOT NULL"),
-        ("DOUBLE", f"isfinite(TRY_CAST({value} AS DOUBLE))"),
+        ("DOUBLE", f"abs(TRY_CAST({value} AS DOUBLE)) < CAST('Infinity' AS DOUBLE)"),
         ("TIMESTAMP", f"TRY_CAST({value} AS TIMESTAMP) IS NOT NULL"),
     )
     for target, fits in tests:
@@ -156,7 +157,7 @@ def run(settings: Settings, progress=None) -> CheckResult:
     DataError
         A file is missing, empty or unreadable, or a required column is absent.
     """
-    con = engine_connect(settings)
+    con = open_engine(settings)
     try:
         return validate(con, settings, progress)
     finally:
@@ -180,7 +181,7 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
     con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
     con.execute(
-        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id HUGEINT, rule VARCHAR, "
+        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
         "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
     )
     promotions_ready = False

@@ -18,7 +18,7 @@ from pathlib import Path
 from . import checks, workspace
 from .config import Settings
 from .contract import INPUT_TABLES, PANELS
-from .engine.duckdb import connect as engine_connect
+from .engine import open_engine
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError, DataWarning
@@ -85,7 +85,7 @@ def build(settings: Settings, *, force: bool = False, progress=None) -> BuildRes
             DataWarning, stacklevel=2,
         )
     result = BuildResult(skipped=False, fingerprint=fp)
-    con = engine_connect(settings)
+    con = open_engine(settings)
     try:
         result.check = checks.validate(con, settings, progress=lambda text: say("check", text))
         if not result.check.usable:

@@ -69,6 +69,8 @@ def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
 
 def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[str]) -> str:
     """A FROM clause reading the files; the file list is bound through a DuckDB variable."""
+    if hasattr(con, "read_files"):  # the Spark engine reads the export itself
+        return con.read_files(table, files)
     var = f"liftlag_files_{table.name}"
     con.execute(f"SET VARIABLE {var} = ?", [files])
     files_expr = f"getvariable('{var}')"
@@ -195,7 +197,7 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
         typed = f"CAST(TRY_CAST({raw} AS TIMESTAMPTZ) AS TIMESTAMP)" if raw_is_text else f"TRY_CAST({raw} AS TIMESTAMP)"
     elif column_type == "DOUBLE":
         # NaN and infinity parse as numbers but are no amount: they count as unparseable.
-        typed = f"CASE WHEN isfinite(TRY_CAST({raw} AS DOUBLE)) THEN TRY_CAST({raw} AS DOUBLE) END"
+        typed = f"CASE WHEN abs(TRY_CAST({raw} AS DOUBLE)) < CAST('Infinity' AS DOUBLE) THEN TRY_CAST({raw} AS DOUBLE) END"
     else:
         typed = f"TRY_CAST({raw} AS {column_type})"
     return f"CASE WHEN {blank} THEN NULL ELSE {typed} END", text
@@ -204,7 +206,7 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
 def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     cols = ", ".join(f"CAST(NULL AS {c.type}) AS {q(c.name)}" for c in contract.columns)
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS HUGEINT) AS _row_id, "
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS BIGINT) AS _row_id, "
         f"CAST(NULL AS BIGINT) AS _file_row, "
         f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, "
         f"CAST(NULL AS UBIGINT) AS _row_hash, CAST(NULL AS VARCHAR) AS _raw_values WHERE false"
@@ -234,19 +236,19 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
-        extras = [c for c in found if c not in mapped and c not in ("_source_file", "file_row_number")] if contract.extra_columns else []
+        extras = [c for c in found if c not in mapped and c not in ("_source_file", "file_row_number", "file_index")] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
         # Parquet is read again by each step that needs it (a scan costs less than holding tens
         # of millions of rows); its rows are keyed by file and row number. CSV and DuckDB tables
         # are read once into a temporary table, keyed by its row number; rows keep file order,
         # so row numbers in the rejects (and "the first copy") are the files'.
-        lazy = table.format == "parquet"
+        lazy = table.format == "parquet" or hasattr(con, "read_files")  # Spark keys every read by file and row
         con.execute("SET preserve_insertion_order = true")
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
             select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy)
-            kind = "VIEW" if lazy else "TABLE"
+            kind = "VIEW" if table.format == "parquet" else "TABLE"
             con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
             rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:
@@ -291,7 +293,9 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     missing = _names_where(missing_parts)
     unparseable = _names_where(unparseable_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
-    key = ("(CAST(hash(_source_file) AS HUGEINT) * 1099511627776 + file_row_number) AS _row_key, "
+    # The row key: the file's place in the sorted file list, then the row in the file; the
+    # same numbers on every engine, so "the first copy" is the same row everywhere.
+    key = ("(CAST(file_index AS BIGINT) * 1099511627776 + file_row_number) AS _row_key, "
            "file_row_number + 1 AS _file_row, ") if lazy else ""
     read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
@@ -324,7 +328,7 @@ def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool
     names = [c.name for c in contract.columns] + list(extras)
     cols = ", ".join(q(n) for n in names)
     as_text = f"CAST(struct_pack({', '.join(f'{q(n)} := {q(n)}' for n in names)}) AS VARCHAR)"
-    keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS HUGEINT) AS _row_id, rowid + 1 AS _file_row"
+    keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS BIGINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
         f"_source_file, {cols}, _missing, _unparseable, _row_hash, "

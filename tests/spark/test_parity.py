@@ -1,0 +1,217 @@
+"""DuckDB and Spark give the same checked tables, panels and timing aggregations from one SQL text.
+
+Each export is checked (and built) once per engine; every table of the two workspaces is then
+compared column by column after sorting, floats to 1e-9 (common practice, no source). The Spark
+engine runs in local mode on the test session's shared SparkSession.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import gzip
+import shutil
+from pathlib import Path
+
+import duckdb
+import numpy as np
+import pandas as pd
+import pytest
+
+from tests.conftest import (
+    ASSIGNMENT_COLUMNS,
+    DEMO_DATA,
+    TINY_ASSIGNMENTS,
+    TINY_CUSTOMERS,
+    TINY_PRODUCTS,
+    TINY_PROMOTIONS,
+    TINY_TRANSACTIONS,
+    TRANSACTION_COLUMNS,
+    write_csv,
+    write_export,
+)
+from toolkit import checks, config, panels, workspace
+from toolkit.config import WorkspaceSettings
+
+pytestmark = pytest.mark.spark
+
+# The original text of a row is rendered by each engine's own struct-to-text cast (DuckDB
+# {'a': 1}, Spark {1}); everything else must agree.
+ENGINE_TEXT = {"rejected_rows": ["raw_values"]}
+
+
+def _settings(config_path: Path, kind: str, workspace_dir: Path):
+    s = config.load(config_path)
+    engine = dataclasses.replace(s.engine, kind=kind, master="local[2]")
+    return dataclasses.replace(s, engine=engine, workspace=WorkspaceSettings(path=workspace_dir))
+
+
+def _tables(database: Path) -> dict[str, pd.DataFrame]:
+    con = duckdb.connect(str(database), read_only=True)
+    try:
+        names = [r[0] for r in con.execute(
+            "SELECT table_name FROM information_schema.tables WHERE table_schema = 'main' ORDER BY 1").fetchall()]
+        return {n: con.execute(f'SELECT * FROM "{n}"').df() for n in names}
+    finally:
+        con.close()
+
+
+def _canonical(frame: pd.DataFrame) -> pd.DataFrame:
+    out = frame.copy()
+    for c in out.columns:
+        col = out[c]
+        if pd.api.types.is_datetime64_any_dtype(col):
+            out[c] = col.astype("datetime64[us]")
+        elif pd.api.types.is_bool_dtype(col) or str(col.dtype) == "boolean":
+            out[c] = col.astype("object")
+        elif pd.api.types.is_numeric_dtype(col):
+            out[c] = col.astype("float64")
+        elif col.dtype == object and col.map(lambda v: hasattr(v, "isoformat")).any():
+            out[c] = pd.to_datetime(col).astype("datetime64[us]")
+    if "source_file" in out.columns:
+        out["source_file"] = out["source_file"].map(lambda p: Path(p).name if isinstance(p, str) else p)
+    keys = sorted(out.columns)
+    return out[keys].sort_values(keys, na_position="first", kind="mergesort").reset_index(drop=True)
+
+
+def assert_same_tables(duck: dict[str, pd.DataFrame], spark: dict[str, pd.DataFrame]) -> None:
+    assert sorted(duck) == sorted(spark)
+    for name in duck:
+        left, right = duck[name], spark[name]
+        drop = ENGINE_TEXT.get(name, [])
+        left, right = left.drop(columns=drop), right.drop(columns=drop)
+        assert sorted(left.columns) == sorted(right.columns), name
+        assert len(left) == len(right), f"{name}: {len(left)} rows on DuckDB, {len(right)} on Spark"
+        left, right = _canonical(left), _canonical(right)
+        for c in left.columns:
+            a, b = left[c], right[c]
+            if a.dtype == "float64" and b.dtype == "float64":
+                same = np.isclose(a.to_numpy(), b.to_numpy(), rtol=0, atol=1e-9, equal_nan=True)
+                assert same.all(), f"{name}.{c}: {a[~same].head(3).tolist()} vs {b[~same].head(3).tolist()}"
+            else:
+                a_obj, b_obj = a.astype(object).where(a.notna(), None), b.astype(object).where(b.notna(), None)
+                diff = [(x, y) for x, y in zip(a_obj, b_obj) if x != y]
+                assert not diff, f"{name}.{c}: {diff[:3]}"
+
+
+def _build_both(config_path: Path, tmp: Path, build: bool = True) -> dict[str, dict]:
+    out = {}
+    for kind in ("duckdb", "spark"):
+        settings = _settings(config_path, kind, tmp / f"ws_{kind}")
+        if build:
+            panels.build(settings, force=True)
+        else:
+            checks.run(settings)
+        out[kind] = {"settings": settings, "checked": _tables(workspace.path(settings, workspace.CHECKED))}
+        if build:
+            out[kind]["panels"] = _tables(workspace.path(settings, workspace.PANELS))
+    return out
+
+
+@pytest.fixture(scope="module")
+def demo_both(spark_session, tmp_path_factory):
+    tmp = tmp_path_factory.mktemp("parity_demo")
+    shutil.copytree(DEMO_DATA, tmp / "export")
+    return _build_both(tmp / "export" / "liftlag.toml", tmp)
+
+
+def test_demo_checked_tables_are_the_same_on_duckdb_and_spark(demo_both):
+    assert_same_tables(demo_both["duckdb"]["checked"], demo_both["spark"]["checked"])
+
+
+def test_demo_panels_are_the_same_on_duckdb_and_spark(demo_both):
+    duck, spark = demo_both["duckdb"]["panels"], demo_both["spark"]["panels"]
+    assert set(duck) == set(panels.PANEL_ORDER)
+    assert all(len(t) > 0 for t in duck.values())
+    assert_same_tables(duck, spark)
+
+
+# One row per rule (the cases of tests/foundation/test_checks.py), all in one export.
+MESSY_TRANSACTIONS = TINY_TRANSACTIONS + [
+    ["o10", "  ", "2026-03-06 10:00:00", "p1", "1", "10", "10", "0", ""],          # missing_required
+    ["o11", "c2", "06/03/2026 nope", "p1", "1", "10", "10", "0", ""],              # unparseable_value
+    ["o12", "c2", "2026-03-06 10:00:00", "p1", "1", "ten", "10", "0", ""],         # unparseable_value
+    TINY_TRANSACTIONS[0],                                                          # duplicate_row
+    ["o13", "c2", "2026-03-06 10:00:00", "p1", "1", "8", "10", "2", "PZ"],         # unknown_promotion
+    ["o14", "", "bad date", "p1", "x", "10", "10", "0", "PZ"],                     # several at once
+    ["o15", "c1", "2026-03-04 10:00:00", "p1", "1", "5", "10", "5", "PA"],         # discount_deeper_than_depth
+    ["o16", "c1", "2026-03-12 10:00:00", "p1", "1", "8", "10", "2", "PA"],         # order_outside_promotion_dates
+    ["o17", "c1", "2999-01-01 10:00:00", "p1", "1", "10", "10", "0", ""],          # future_timestamp
+    ["o18", "c1", "2026-03-06 10:00:00", "p1", "1", "12", "10", "0", ""],          # net_above_list
+    ["o19", "c3", "2026-03-07 10:00:00", "p2", "1", "nan", "10", "0", ""],         # NaN is no amount
+]
+MESSY_PROMOTIONS = TINY_PROMOTIONS + [
+    ["PA", "2026-04-01", "2026-04-08", "percent_off", "0.3", "targeted", "again"],  # duplicate_key
+    ["PE", "2026-04-01", "2026-04-08", "bogo", "0.3", "targeted", "odd"],           # value_not_allowed
+]
+INVERTED = ["PC", "2026-05-10", "2026-05-01", "percent_off", "0.1", "targeted", "late"]  # ends_before_starts
+MESSY_ASSIGNMENTS = TINY_ASSIGNMENTS + [
+    ["PA", "c4", "X", "2026-03-01 10:00:00"],                                      # value_not_allowed
+    ["PA", "c1", "H", "2026-03-01 11:00:00"],                                      # customer_in_both_arms
+    ["PA", "c5", "T", "2026-03-01T12:00:00+02:00"],                                # offset: UTC 10:00
+]
+MESSY_CUSTOMERS = TINY_CUSTOMERS + [["c3", "2025-11-01", "south"], ["c1", "2025-10-01", "west"]]  # duplicate_key
+MESSY_PRODUCTS = TINY_PRODUCTS + [["p1", "tools", "5"]]                                         # duplicate_key
+
+
+def _messy(folder: Path, promotions) -> Path:
+    return write_export(folder, transactions=MESSY_TRANSACTIONS, promotions=promotions,
+                        assignments=MESSY_ASSIGNMENTS, customers=MESSY_CUSTOMERS, products=MESSY_PRODUCTS)
+
+
+def test_messy_export_every_rule_fires_and_both_engines_agree(spark_session, tmp_path):
+    both = _build_both(_messy(tmp_path / "export", MESSY_PROMOTIONS + [INVERTED]), tmp_path, build=False)
+    duck, spark = both["duckdb"]["checked"], both["spark"]["checked"]
+    fired = set(duck["rejects_summary"]["reason"]) | set(duck["warnings_summary"]["rule"])
+    assert fired == {r.name for r in checks.RULES}
+    assert_same_tables(duck, spark)
+
+
+def test_messy_export_in_gzipped_csv_parts_builds_the_same_panels(spark_session, tmp_path):
+    config_path = _messy(tmp_path / "export", MESSY_PROMOTIONS)
+    folder = config_path.parent
+    (folder / "transactions.csv").unlink()
+    parts = folder / "lines"
+    parts.mkdir()
+    half = len(MESSY_TRANSACTIONS) // 2
+    for i, rows in enumerate((MESSY_TRANSACTIONS[:half], MESSY_TRANSACTIONS[half:])):
+        plain = write_csv(parts / f"part{i}.csv", TRANSACTION_COLUMNS, rows)
+        with plain.open("rb") as src, gzip.open(str(plain) + ".gz", "wb") as dst:
+            dst.write(src.read())
+        plain.unlink()
+    config_path.write_text(config_path.read_text().replace('path = "transactions.csv"', 'path = "lines/*.csv.gz"'))
+    both = _build_both(config_path, tmp_path)
+    assert_same_tables(both["duckdb"]["checked"], both["spark"]["checked"])
+    assert_same_tables(both["duckdb"]["panels"], both["spark"]["panels"])
+
+
+def test_messy_export_in_parquet_builds_the_same_panels(spark_session, tmp_path):
+    config_path = write_export(tmp_path / "export", transactions=MESSY_TRANSACTIONS, promotions=MESSY_PROMOTIONS,
+                               assignments=MESSY_ASSIGNMENTS, customers=MESSY_CUSTOMERS, products=MESSY_PRODUCTS,
+                               parquet=True)
+    both = _build_both(config_path, tmp_path)
+    assert_same_tables(both["duckdb"]["checked"], both["spark"]["checked"])
+    assert_same_tables(both["duckdb"]["panels"], both["spark"]["panels"])
+
+
+TIMING_TABLES = ("timing_purchase_days", "timing_calendar", "timing_customer_changes", "timing_cells",
+                 "timing_gap_counts", "timing_cox_sample")
+
+
+def test_demo_timing_aggregations_are_the_same_on_duckdb_and_spark(demo_both):
+    """sql/timing on the demo's panels: purchase days (with the customer blocks of the project's
+    hash), calendar, coupon changes, hazard cells, gap counts and the Cox sample."""
+    from toolkit.engine.spark import open_workspace
+    from toolkit.timing.spells import SpellOptions, TimingTables
+
+    duck_settings, spark_settings = demo_both["duckdb"]["settings"], demo_both["spark"]["settings"]
+    promotions = demo_both["duckdb"]["checked"]["promotions"]
+    starts = sorted(pd.to_datetime(promotions.loc[promotions["audience"] == "targeted", "starts_at"]).dt.date)
+    options = SpellOptions(sample_customers=300, n_blocks=16)
+    duck = TimingTables(workspace.connect(duck_settings), options, starts)
+    spark = TimingTables(open_workspace(spark_settings), options, starts)
+    fetched = {}
+    for name, tables in (("duckdb", duck), ("spark", spark)):
+        fetched[name] = {t: tables.cursor.execute(f"SELECT * FROM {t}").df() for t in TIMING_TABLES}
+    assert len(fetched["duckdb"]["timing_cells"]) > 0
+    assert fetched["duckdb"]["timing_purchase_days"]["block"].nunique() == 16
+    assert_same_tables(fetched["duckdb"], fetched["spark"])

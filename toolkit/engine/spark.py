@@ -1,0 +1,409 @@
+"""The Spark engine: check and build run their SQL on a SparkSession.
+
+``SparkConnection`` offers the few calls of a DuckDB connection that the check, the build and the
+timing SQL make (``execute(sql, params)`` with ``.fetchall()`` / ``.df()``, ``register``,
+``cursor``, ``close``), and runs each statement on Spark: the DuckDB SQL is transpiled by
+``toolkit.engine.transpile.to_spark`` with the bound values as literals, so the same SQL files
+serve both engines. What is DuckDB-only in those calls is handled here:
+
+- ``SET VARIABLE name = ?`` keeps the value; ``getvariable('name')`` becomes its literal.
+- ``CREATE [OR REPLACE] TEMP TABLE`` is a cached temporary view (Spark's temporary views cannot be
+  replaced by a query that reads them); ``INSERT INTO t SELECT`` appends by a cached union.
+- ``ATTACH 'x.duckdb' AS out`` / ``CREATE TABLE out.name AS ...`` / ``DETACH out`` write each table as
+  Parquet under ``<workspace>/spark/<x>/<name>/`` and, on DETACH, make ``x.duckdb`` a file of views
+  over those Parquet folders: the analyses open the workspace as they do after a DuckDB build.
+- The export is read by Spark itself (``read_files``): Parquet (with hive partitions), CSV and
+  gzipped CSV, each row keyed by its file's place in the sorted file list and its row in the
+  file, as the DuckDB source layer keys it.
+
+The session is pinned to UTC, reads timestamps without a zone as ``TIMESTAMP_NTZ`` and runs with
+ANSI mode off (a failed cast is null, as DuckDB's TRY_CAST). One session serves the process.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+from pathlib import Path
+
+import pandas as pd
+import sqlglot
+from sqlglot import exp
+
+from ..errors import ConfigError, DataError
+from .transpile import parse_duckdb, to_spark
+
+_SESSION = None
+
+# Spark settings the engine relies on; [engine.spark_conf] may add others but not change these.
+PINNED_CONF = {
+    "spark.sql.session.timeZone": "UTC",
+    "spark.sql.timestampType": "TIMESTAMP_NTZ",
+    "spark.sql.parquet.inferTimestampNTZ.enabled": "true",
+    "spark.sql.parquet.outputTimestampType": "TIMESTAMP_MICROS",
+    "spark.sql.ansi.enabled": "false",
+    "spark.sql.legacy.sizeOfNull": "false",
+}
+DEFAULT_CONF = {
+    "spark.ui.enabled": "false",
+    "spark.ui.showConsoleProgress": "false",
+    "spark.sql.shuffle.partitions": "8",
+    "spark.driver.extraJavaOptions": "-Duser.timezone=UTC",
+    "spark.executor.extraJavaOptions": "-Duser.timezone=UTC",
+}
+
+_SPARK_TO_DUCKDB = {
+    "string": "VARCHAR", "bigint": "BIGINT", "int": "INTEGER", "smallint": "SMALLINT", "tinyint": "TINYINT",
+    "double": "DOUBLE", "float": "FLOAT", "boolean": "BOOLEAN", "date": "DATE", "timestamp": "TIMESTAMP WITH TIME ZONE",
+    "timestamp_ntz": "TIMESTAMP", "binary": "BLOB",
+}
+
+
+def session(master: str = "local[*]", conf: dict | None = None):
+    """The process's SparkSession (created on first use; start-up takes several seconds)."""
+    global _SESSION
+    try:
+        from pyspark.sql import SparkSession
+    except ImportError:
+        raise ConfigError("[engine] kind = \"spark\" needs pyspark: pip install 'liftlag[spark]'") from None
+    if _SESSION is not None:
+        return _SESSION
+    os.environ.setdefault("PYSPARK_PYTHON", os.environ.get("PYSPARK_PYTHON", "python3"))
+    builder = SparkSession.builder.master(master).appName("liftlag")
+    for key, value in {**DEFAULT_CONF, **(conf or {}), **PINNED_CONF}.items():
+        builder = builder.config(key, str(value))
+    _SESSION = builder.getOrCreate()
+    _SESSION.sparkContext.setLogLevel("ERROR")
+    for key, value in PINNED_CONF.items():
+        _SESSION.conf.set(key, value)
+    return _SESSION
+
+
+def duckdb_type(spark_type: str) -> str:
+    """A Spark type name as the DuckDB type the source layer expects."""
+    name = spark_type.lower()
+    if name.startswith("decimal"):
+        return "DECIMAL"
+    return _SPARK_TO_DUCKDB.get(name, name.upper())
+
+
+class _Result:
+    def __init__(self, frame=None, rows=None):
+        self._frame = frame
+        self._rows = rows
+
+    def fetchall(self) -> list[tuple]:
+        if self._rows is not None:
+            return self._rows
+        if self._frame is None:
+            return []
+        return [tuple(r) for r in self._frame.collect()]
+
+    def df(self) -> pd.DataFrame:
+        if self._frame is None:
+            return pd.DataFrame()
+        out = self._frame.toPandas()
+        return out
+
+
+def _placeholders(tree: exp.Expression, params: list) -> exp.Expression:
+    """Positional ``?`` parameters as literals (in the order they appear)."""
+    from .transpile import _literal
+
+    values = iter(params)
+
+    def replace(node):
+        if isinstance(node, exp.Placeholder):
+            return _literal(next(values))
+        return node
+
+    return tree.transform(replace)
+
+
+class SparkConnection:
+    """A SparkSession behind the calls of a DuckDB connection that check, build and timing make."""
+
+    def __init__(self, settings=None, spark=None) -> None:
+        engine = settings.engine if settings is not None else None
+        master = getattr(engine, "master", None) or "local[*]"
+        conf = dict(getattr(engine, "spark_conf", None) or {})
+        if engine is not None and getattr(engine, "threads", None) and master == "local[*]":
+            master = f"local[{int(engine.threads)}]"
+        self.spark = spark or session(master, conf)
+        self.settings = settings
+        self.variables: dict[str, object] = {}
+        self._views: set[str] = set()
+        self._cached: dict[str, object] = {}
+        self._attached: dict[str, Path] = {}
+        self._written: dict[str, list[tuple[str, Path]]] = {}
+        self._parent = None
+
+    # -- the DuckDB-like surface ----------------------------------------------------------------
+    def cursor(self) -> "SparkConnection":
+        """Another handle on the same session and temporary views (Spark has one catalog)."""
+        other = SparkConnection.__new__(SparkConnection)
+        other.__dict__.update(self.__dict__)
+        other.variables = dict(self.variables)
+        other._parent = self
+        return other
+
+    def register(self, name: str, frame: pd.DataFrame) -> None:
+        sdf = self.spark.createDataFrame(frame) if len(frame) else self._empty_like(frame)
+        sdf.createOrReplaceTempView(name)
+        self._views.add(name)
+
+    def unregister(self, name: str) -> None:
+        self._drop(name)
+
+    def close(self) -> None:
+        if self._parent is not None:
+            return
+        for name in list(self._views):
+            self._drop(name)
+
+    def sql(self, text: str):
+        """A Spark DataFrame of one DuckDB SELECT (values bound)."""
+        return self.spark.sql(to_spark(text, self.variables))
+
+    def execute(self, sql: str, params: list | None = None) -> _Result:
+        stripped = sql.strip().rstrip(";")
+        head = " ".join(stripped.split()[:3]).upper()
+        if head.startswith("SET VARIABLE"):
+            return self._set_variable(stripped, params or [])
+        if head.startswith("SET "):
+            return _Result(rows=[])  # DuckDB session settings (threads, search_path, ...)
+        if head.startswith("ATTACH"):
+            m = re.match(r"ATTACH\s+\?\s+AS\s+(\w+)", stripped, re.I)
+            if not m:
+                raise ValueError(f"Spark engine: unsupported ATTACH: {stripped[:80]}")
+            self._attached[m.group(1)] = Path(params[0])
+            self._written[m.group(1)] = []
+            return _Result(rows=[])
+        if head.startswith("DETACH"):
+            self._detach(stripped.split()[1])
+            return _Result(rows=[])
+        if head.startswith("DESCRIBE"):
+            target = stripped[len("DESCRIBE"):].strip()
+            query = target if target.upper().startswith("SELECT") else f"SELECT * FROM {target}"
+            frame = self.sql(query)
+            return _Result(rows=[(f.name, duckdb_type(f.dataType.simpleString())) for f in frame.schema.fields])
+        trees = parse_duckdb(stripped)
+        if len(trees) != 1:
+            raise ValueError(f"Spark engine: one statement at a time, found {len(trees)}")
+        tree = trees[0]
+        if params:
+            tree = _placeholders(tree, params)
+        if isinstance(tree, exp.Create):
+            return self._create(tree)
+        if isinstance(tree, exp.Insert):
+            return self._insert(tree)
+        frame = self.spark.sql(to_spark(self._unqualify(tree), self.variables))
+        return _Result(frame=frame)
+
+    # -- statements -----------------------------------------------------------------------------
+    def _set_variable(self, sql: str, params: list) -> _Result:
+        m = re.match(r"SET\s+VARIABLE\s+(\w+)\s*=\s*(.+)$", sql, re.I | re.S)
+        if not m:
+            raise ValueError(f"Spark engine: unsupported SET VARIABLE: {sql[:80]}")
+        name, value = m.group(1), m.group(2).strip()
+        if value == "?":
+            self.variables[name] = params[0]
+        elif re.fullmatch(r"map\(\s*\?\s*,\s*\?\s*\)", value, re.I):
+            self.variables[name] = dict(zip(params[0], params[1]))
+        else:
+            raise ValueError(f"Spark engine: SET VARIABLE {name} takes a bound value (?), found {value[:60]}")
+        return _Result(rows=[])
+
+    def _unqualify(self, tree: exp.Expression) -> exp.Expression:
+        """``out.name`` / ``out.main.name`` (an attached output) read the table written there."""
+        def replace(node):
+            if isinstance(node, exp.Table) and node.args.get("db") is not None:
+                parts = [p.name for p in (node.args.get("catalog"), node.args.get("db")) if p is not None]
+                if parts and (parts[0] in self._attached or parts[0] in ("memory", "checked")):
+                    node = node.copy()
+                    node.set("db", None)
+                    node.set("catalog", None)
+            return node
+
+        return tree.transform(replace)
+
+    def _create(self, tree: exp.Create) -> _Result:
+        kind = str(tree.args.get("kind") or "").upper()
+        target = tree.this
+        schema_cols = None
+        if isinstance(target, exp.Schema):
+            schema_cols = target.expressions
+            target = target.this
+        table = target if isinstance(target, exp.Table) else target.find(exp.Table)
+        name = table.name
+        qualifier = [p.name for p in (table.args.get("catalog"), table.args.get("db")) if p is not None]
+        query = tree.expression
+        if schema_cols is not None and query is None:
+            cols = ", ".join(f"CAST(NULL AS {c.args['kind'].sql('duckdb')}) AS {c.name}" for c in schema_cols)
+            query = sqlglot.parse_one(f"SELECT {cols} WHERE false", read="duckdb")
+        frame = self.spark.sql(to_spark(self._unqualify(query), self.variables))
+        if qualifier and qualifier[0] in self._attached:
+            self._write(qualifier[0], name, frame)
+            return _Result(rows=[])
+        if kind == "TABLE":
+            frame = frame.cache()
+            frame.count()
+            old = self._cached.pop(name, None)
+            frame.createOrReplaceTempView(name)
+            if old is not None:
+                old.unpersist()
+            self._cached[name] = frame
+        else:
+            frame.createOrReplaceTempView(name)
+        self._views.add(name)
+        return _Result(rows=[])
+
+    def _insert(self, tree: exp.Insert) -> _Result:
+        target = tree.this
+        table = target if isinstance(target, exp.Table) else target.find(exp.Table)
+        name = table.name
+        new = self.spark.sql(to_spark(self._unqualify(tree.expression), self.variables))
+        current = self.spark.table(name)
+        new = new.toDF(*current.columns)
+        combined = current.unionByName(new).cache()
+        combined.count()
+        old = self._cached.pop(name, None)
+        combined.createOrReplaceTempView(name)
+        if old is not None:
+            old.unpersist()
+        self._cached[name] = combined
+        return _Result(rows=[])
+
+    def _write(self, alias: str, name: str, frame) -> None:
+        target = self._attached[alias]
+        folder = parquet_folder(target) / name
+        if folder.exists():
+            shutil.rmtree(folder)
+        frame.write.parquet(str(folder))
+        self.spark.read.parquet(str(folder)).createOrReplaceTempView(name)
+        self._views.add(name)
+        self._written[alias].append((name, folder))
+
+    def _detach(self, alias: str) -> None:
+        """The attached DuckDB file becomes a file of views over the Parquet written under it."""
+        import duckdb
+
+        target = self._attached.pop(alias)
+        con = duckdb.connect(str(target))
+        try:
+            for name, folder in self._written.pop(alias, []):
+                pattern = str(folder / "*.parquet").replace("'", "''")
+                con.execute(f'CREATE VIEW "{name}" AS SELECT * FROM read_parquet(\'{pattern}\')')
+        finally:
+            con.close()
+
+    def _drop(self, name: str) -> None:
+        cached = self._cached.pop(name, None)
+        if cached is not None:
+            cached.unpersist()
+        self.spark.catalog.dropTempView(name)
+        self._views.discard(name)
+
+    def _empty_like(self, frame: pd.DataFrame):
+        from pyspark.sql import types as T
+
+        mapping = {"int32": T.IntegerType(), "int64": T.LongType(), "float64": T.DoubleType(), "bool": T.BooleanType()}
+        fields = [T.StructField(c, mapping.get(str(frame[c].dtype), T.StringType()), True) for c in frame.columns]
+        return self.spark.createDataFrame([], T.StructType(fields))
+
+    # -- reading the export ---------------------------------------------------------------------
+    def read_files(self, table, files: list[str]) -> str:
+        """Register the export files of ``table`` as a view; return the view's name.
+
+        Columns: the file's own (all text for CSV), ``_source_file`` (the path as listed),
+        ``file_index`` (0-based place in the sorted file list) and ``file_row_number`` (0-based: the row in
+        its file for Parquet; for CSV the row over all files in file order, as DuckDB's rowid).
+        """
+        from pyspark.sql import Window
+        from pyspark.sql import functions as F
+
+        spark = self.spark
+        view = f"liftlag_read_{table.name}"
+        paths = [str(Path(f).resolve()) for f in files]
+        numbered = spark.createDataFrame(
+            pd.DataFrame({"_path": paths, "_source_file": list(files), "file_index": list(range(len(files)))}))
+        if table.format == "parquet":
+            reader = spark.read  # parts share one schema (mergeSchema would cost a job per read)
+            base = _hive_base(self.settings, table) if table.hive_partitioning is not False else None
+            if base is not None:
+                reader = reader.option("basePath", str(base))
+            frame = reader.parquet(*paths)
+            frame = frame.select("*", F.col("_metadata.file_path").alias("_uri"),
+                                 F.col("_metadata.row_index").alias("file_row_number"))
+        elif table.format == "csv":
+            reader = (spark.read.option("header", str(table.header).lower()).option("inferSchema", "false")
+                      .option("sep", table.delimiter or ",").option("quote", '"').option("escape", '"')
+                      .option("multiLine", "false").option("mode", "PERMISSIVE"))
+            frame = reader.csv(paths)
+            frame = frame.select("*", F.col("_metadata.file_path").alias("_uri"),
+                                 F.monotonically_increasing_id().alias("_read_order"))
+        else:
+            raise ConfigError(f"tables.{table.name}.format = {table.format!r} cannot be read by the Spark engine; "
+                              "export the table as Parquet or CSV")
+        frame = frame.withColumn("_path", F.url_decode(F.regexp_replace("_uri", r"^file:(//)?", ""))).drop("_uri")
+        frame = frame.join(F.broadcast(numbered), on="_path", how="left")
+        unmatched = frame.filter(F.col("file_index").isNull()).limit(1).collect()
+        if unmatched:
+            raise DataError(f"table {table.name}: Spark read a file outside the list: {unmatched[0]['_path']}")
+        if table.format == "csv":
+            # Rows within a file keep the order they were read in (one file's splits are read in
+            # offset order); CSV rows are numbered over all files in file order, as DuckDB numbers them.
+            in_file = Window.partitionBy("file_index").orderBy("_read_order")
+            frame = frame.withColumn("_in_file", F.row_number().over(in_file) - 1)
+            counts = frame.groupBy("file_index").agg(F.count(F.lit(1)).alias("_n"))
+            offsets = counts.withColumn(
+                "_offset", F.coalesce(F.sum("_n").over(Window.orderBy("file_index").rowsBetween(Window.unboundedPreceding, -1)), F.lit(0)))
+            frame = (frame.join(F.broadcast(offsets.select("file_index", "_offset")), on="file_index")
+                     .withColumn("file_row_number", F.col("_offset") + F.col("_in_file"))
+                     .withColumn("file_index", F.lit(0))
+                     .drop("_read_order", "_in_file", "_offset"))
+        frame = frame.drop("_path")
+        frame.createOrReplaceTempView(view)
+        self._views.add(view)
+        return view
+
+
+def parquet_folder(database: Path) -> Path:
+    """Where the Parquet behind a workspace database file is written: <workspace>/spark/<stem>/."""
+    stem = database.name.split(".")[0]
+    return database.parent / "spark" / stem
+
+
+def _hive_base(settings, table) -> Path | None:
+    """The folder above the partition folders: the table's path up to its first wildcard."""
+    if settings is None:
+        return None
+    full = str(settings.resolve(table.path))
+    parts = Path(full).parts
+    fixed = []
+    for part in parts:
+        if any(ch in part for ch in "*?["):
+            break
+        fixed.append(part)
+    base = Path(*fixed) if fixed else None
+    if base is not None and base.is_file():
+        base = base.parent
+    return base
+
+
+def open_workspace(settings) -> SparkConnection:
+    """A Spark connection on a workspace built by the Spark engine: every checked table and
+    panel as a temporary view of its Parquet (``checked.promotions`` reads ``promotions``)."""
+    from .. import workspace
+
+    con = SparkConnection(settings)
+    for database in (workspace.CHECKED, workspace.PANELS):
+        folder = parquet_folder(workspace.path(settings, database))
+        if not folder.is_dir():
+            raise DataError(f"no Spark-built tables in {folder}; run `liftlag build -c {settings.config_path}` "
+                            "with [engine] kind = \"spark\" first")
+        for table in sorted(p for p in folder.iterdir() if p.is_dir()):
+            con.spark.read.parquet(str(table)).createOrReplaceTempView(table.name)
+            con._views.add(table.name)
+    return con
