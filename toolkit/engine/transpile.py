@@ -78,11 +78,23 @@ def _convert_format(fmt: str) -> str:
     return "".join(out)
 
 
+def _folded(node: exp.Expression) -> exp.Expression:
+    """A constant expression (no column) evaluated once, as a literal: Spark's percentile needs
+    its quantiles as a constant, and a bound ``list_transform(range(1, k), ...)`` is one."""
+    if node.find(exp.Column) is not None or isinstance(node, exp.Literal):
+        return node
+    import duckdb
+
+    value = duckdb.sql("SELECT " + node.sql(dialect="duckdb")).fetchall()[0][0]
+    return _literal(value)
+
+
 def spark_rewrites(tree: exp.Expression) -> exp.Expression:
     """The constructs sqlglot does not carry over to Spark, rewritten to Spark's equivalents.
 
     - ``TRY_STRPTIME(x, '%Y-%m-%d')`` -> ``TRY_TO_TIMESTAMP(x, 'yyyy-MM-dd')``
-    - ``quantile_cont(x, q)`` -> ``percentile(x, q)`` (both exact, linear interpolation; q may be a list)
+    - ``quantile_cont(x, q)`` -> ``percentile(x, q)`` (both exact, linear interpolation; q may be a
+      list, and a constant list expression is evaluated to its literal)
     - ``CAST('0x' || h AS BIGINT)`` (hex text to a number, as in the project's hash
       ``CAST('0x' || substr(md5(text), 1, 15) AS BIGINT)``) -> ``CAST(conv(h, 16, 10) AS BIGINT)``
     - ``regexp_full_match(x, p)`` -> ``x RLIKE '^(?:p)$'``
@@ -105,7 +117,7 @@ def spark_rewrites(tree: exp.Expression) -> exp.Expression:
             q = node.args.get("expression") if not isinstance(node, exp.Anonymous) else node.expressions[1]
             if q is None:
                 q = node.args.get("quantile")
-            return exp.Anonymous(this="PERCENTILE", expressions=[value, q])
+            return exp.Anonymous(this="PERCENTILE", expressions=[value, _folded(q)])
         if isinstance(node, exp.Cast) and node.to.this == exp.DataType.Type.BIGINT:
             inner = node.this.unnest() if isinstance(node.this, exp.Paren) else node.this
             if isinstance(inner, exp.DPipe) and isinstance(inner.this, exp.Literal) and inner.this.this == "0x":
