@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import sources, workspace
+from . import sources, sqlfiles, workspace
 from .config import Settings
 from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
 from .engine import open_engine
@@ -24,8 +24,8 @@ from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError
 
-SQL_DIR = Path(__file__).resolve().parent.parent / "sql"
-CHECKS_DIR = SQL_DIR / "checks"
+SQL_DIR = sqlfiles.root()  # sql/ in a clone, toolkit/sql in an installed package
+CHECKS_DIR = sqlfiles.folder("checks")
 
 
 @dataclass(frozen=True)
@@ -294,6 +294,12 @@ def _write_rejects(con) -> None:
     )
 
 
+# A configured table with rows but none accepted makes the export unusable. Assignments are
+# optional (a shop without targeted campaigns configures none), but a configured assignments file
+# whose every row is rejected is a broken export, not a shop without campaigns.
+ALL_REJECTED_IS_FATAL = ("transactions", "promotions", "assignments")
+
+
 def _problems(summary: pd.DataFrame, con) -> list[str]:
     problems = []
     for row in summary.itertuples():
@@ -304,7 +310,7 @@ def _problems(summary: pd.DataFrame, con) -> list[str]:
             # export: usable (for the timing and dependence panels). No order lines is not.
             if row.table == "transactions":
                 problems.append(f"table {row.table}: no rows read; the export is empty")
-        elif row.accepted == 0 and not INPUT_TABLES[row.table].optional:
+        elif row.accepted == 0 and row.table in ALL_REJECTED_IS_FATAL:
             problems.append(f"table {row.table}: all {row.rows_read} rows rejected; see the rejects summary")
     inverted = con.execute(
         "SELECT detail FROM rejected WHERE table_name = 'promotions' AND reason = 'ends_before_starts' ORDER BY _row_id"

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
-from .contract import INPUT_TABLES
+from .contract import INPUT_TABLES, REQUIRED_TABLES
 from .errors import ConfigError
 
 FORMATS = ("parquet", "csv", "duckdb")
@@ -339,11 +339,11 @@ def parse(data: dict[str, Any], config_path: Path) -> Settings:
     tables_body = data.get("tables")
     if not isinstance(tables_body, dict) or not tables_body:
         raise ConfigError(
-            f"{path}: no [tables.*] sections; name at least the transactions, promotions and "
-            f"assignments files, e.g. [tables.transactions] path = \"export/order_lines/*.parquet\""
+            f"{path}: no [tables.*] sections; name at least the transactions and promotions files "
+            f"(and the assignments of targeted campaigns, if any), e.g. [tables.transactions] path = \"export/order_lines/*.parquet\""
         )
     tables = {name: _parse_table(path, name, body) for name, body in tables_body.items()}
-    for required in ("transactions", "promotions", "assignments"):
+    for required in REQUIRED_TABLES:  # assignments, customers and products are optional
         if required not in tables:
             raise ConfigError(f"{path}: section [tables.{required}] is missing; it is required (give its path)")
     sections = {name: _parse_section(path, name, data[name]) for name in _SECTIONS if name in data}

@@ -85,6 +85,9 @@ INPUT_TABLES: dict[str, InputTable] = {
                 Column("arm", "VARCHAR", True, ", ".join(ARMS)),
                 Column("assigned_at", "TIMESTAMP", True),
             ),
+            # Only targeted campaigns have assignments: a shop that runs only broadcast sales has
+            # none, and its export is still usable (timing and the long-run analyses run).
+            optional=True,
             allowed_values={"arm": ARMS},
         ),
         InputTable(

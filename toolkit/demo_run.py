@@ -1,7 +1,8 @@
 """``liftlag demo``: the invented demo export, checked, built and analysed end to end.
 
-The shipped ``demo_data/`` export is reused when its recorded generation matches the requested
-seed and size; otherwise a fresh one is generated into ``<out>/export``. The workspace goes to
+In a clone, the shipped ``demo_data/`` export is reused when its recorded generation matches the
+requested seed and size; otherwise (and always after a normal install, which carries no
+``demo_data/``) the same export is generated from its seed into ``<out>/export``. The workspace goes to
 ``<out>/.liftlag`` so that the shipped export stays untouched.
 """
 
@@ -18,6 +19,7 @@ from . import config as config_module
 from .config import WorkspaceSettings
 from .results import write_manifest, write_tables
 
+# Beside the package in a clone; absent in an installed package (site-packages has no demo_data/).
 SHIPPED = Path(__file__).resolve().parent.parent / "demo_data"
 
 

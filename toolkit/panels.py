@@ -15,7 +15,7 @@ import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from . import checks, workspace
+from . import checks, sqlfiles, workspace
 from .config import Settings
 from .contract import INPUT_TABLES, PANELS
 from .engine import open_engine
@@ -23,7 +23,7 @@ from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError, DataWarning
 
-PANELS_DIR = checks.SQL_DIR / "panels"
+PANELS_DIR = sqlfiles.folder("panels")
 PANEL_ORDER: tuple[str, ...] = tuple(PANELS)  # orders, customer_periods, purchase_gaps, campaign_windows, customer_quarters
 
 

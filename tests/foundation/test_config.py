@@ -67,8 +67,14 @@ def test_value_mapping_only_for_allowed_values(tmp_path):
 
 
 def test_missing_required_table(tmp_path):
-    with pytest.raises(ConfigError, match=r"\[tables.assignments\] is missing"):
-        load(tmp_path, MINIMAL.replace('[tables.assignments]\npath = "a.csv"\n', ""))
+    with pytest.raises(ConfigError, match=r"\[tables.promotions\] is missing"):
+        load(tmp_path, MINIMAL.replace('[tables.promotions]\npath = "p.csv"\n', ""))
+
+
+def test_assignments_are_optional(tmp_path):
+    """An export of broadcast sales only has no assignments (the data contract marks them optional)."""
+    settings = load(tmp_path, MINIMAL.replace('[tables.assignments]\npath = "a.csv"\n', ""))
+    assert "assignments" not in settings.tables
 
 
 def test_format_cannot_be_guessed(tmp_path):

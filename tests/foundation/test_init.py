@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import tomllib
 
+import pytest
+
 from toolkit import cli
 from tests.conftest import write_export
 
@@ -19,7 +21,8 @@ def test_init_guesses_renamed_columns_and_coded_arms_and_the_result_checks_clean
     tx.unlink()
     assert cli.main(["init", str(cfg.parent)]) == 0
     out = capsys.readouterr().out
-    assert "order_id <- invoice_no (guessed" in out and "arm treatment <- 'T'" in out
+    assert "order_id <- invoice_no (sure: name 'invoice_no' is a usual name for it" in out
+    assert "arm treatment <- 'T' (NOT SURE" in out
     written = tomllib.loads(cfg.read_text())
     columns = written["tables"]["transactions"]["columns"]
     assert columns == {"order_id": "invoice_no", "customer_id": "client_ref", "ordered_at": "created",
@@ -28,3 +31,18 @@ def test_init_guesses_renamed_columns_and_coded_arms_and_the_result_checks_clean
     assert "# guessed" in cfg.read_text()
     assert cli.main(["check", "-c", str(cfg)]) == 0
     assert cli.main(["init", str(cfg.parent)]) == 2  # will not overwrite without --force
+
+
+def test_names_are_normalised_and_coded_values_read_only_when_every_value_reads():
+    """Common practice, no source: camelCase and punctuation are naming habits, not meaning."""
+    from toolkit.init import value_map
+    from toolkit.init.guess import name_match
+    from toolkit.init.profile import normalise
+
+    assert normalise("OrderNumber") == "order_number" and normalise(" Paid Value ") == "paid_value"
+    assert name_match("OrderNumber", "order_id") == (pytest.approx(0.997), True)
+    assert name_match("mailed", "assigned_at")[0] == 0.0  # a faint resemblance is no evidence
+    assert value_map("arm", {"T", "C"}) == {"treatment": "T", "holdout": "C"}
+    assert value_map("audience", {"Targeted", "Broadcast"}) == {"targeted": "Targeted", "broadcast": "Broadcast"}
+    assert value_map("arm", {"T", "C", "X"}) is None  # one value that does not read spoils the map
+    assert value_map("arm", {"T", "test"}) is None  # two values for one arm

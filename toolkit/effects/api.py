@@ -164,6 +164,12 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
     promotion = _promotion(con, str(promotion_id))
     panel = con.execute(f"SELECT * FROM {PANEL} WHERE promotion_id = ? ORDER BY customer_id", [str(promotion_id)]).df()
     if panel.empty:
+        if "assignments" not in settings.tables:
+            raise AnalysisError(
+                f"promotion {promotion_id!r} is targeted but {settings.config_path} has no [tables.assignments]: "
+                f"there is no targeted campaign to read out without the assignments of its customers; add the "
+                f"assignments file under [tables.assignments] and run `liftlag build`"
+            )
         raise AnalysisError(
             f"promotion {promotion_id!r} is targeted but has no rows in the {PANEL} panel: the assignments table has "
             f"no customers for it (or `liftlag build` ran before they were added); check the assignments export"

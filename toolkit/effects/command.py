@@ -39,8 +39,7 @@ def run_command(args) -> int:
         for pid, reason in facts["skipped"].items():
             err_console.print(f"[yellow]skipped {pid}:[/] {reason}")
         if not facts["campaigns"]:
-            raise AnalysisError("no targeted campaign could be analysed" + (
-                "" if facts["skipped"] else ": the workspace has no targeted promotion with assigned customers"))
+            raise AnalysisError(_nothing_to_read_out(settings, facts))
         console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{out}[/]")
         return 0
     con = workspace.connect(settings)
@@ -56,6 +55,18 @@ def run_command(args) -> int:
     html = [p for p in paths if p.suffix == ".html"]
     console.print(f"readout: [bold]{html[0] if html else out}[/] (tables beside it)")
     return 0
+
+
+def _nothing_to_read_out(settings, facts: dict) -> str:
+    """Why ``campaign --all`` found no campaign to read out."""
+    if facts["skipped"]:
+        return f"no targeted campaign could be analysed ({len(facts['skipped'])} skipped, reasons above)"
+    if "assignments" not in settings.tables:
+        return (f"there is no targeted campaign to read out: {settings.config_path} has no [tables.assignments] "
+                f"(an export of broadcast sales only); `liftlag timing` runs without assignments, and a targeted "
+                f"campaign needs its assignments file under [tables.assignments]")
+    return ("there is no targeted campaign to read out: the workspace has no targeted promotion with assigned "
+            "customers (check the promotions' audience values and the assignments' promotion ids)")
 
 
 def _print_summary(console, readout) -> None:

@@ -21,9 +21,10 @@ import duckdb
 import numpy as np
 import pandas as pd
 
+from .. import sqlfiles
 from ..errors import AnalysisError, DataError
 
-SQL_DIR = Path(__file__).resolve().parents[2] / "sql" / "timing"  # beside sql/checks and sql/panels
+SQL_DIR = sqlfiles.folder("timing")  # beside sql/checks and sql/panels
 ORDER = (
     "timing_purchase_days",
     "timing_calendar",
