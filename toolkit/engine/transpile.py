@@ -8,6 +8,7 @@ DuckDB and Spark (see ``spark_rewrites``); everything else is sqlglot's own tran
 from __future__ import annotations
 
 import datetime as dt
+import decimal
 
 import sqlglot
 from sqlglot import exp
@@ -21,7 +22,7 @@ def _literal(value) -> exp.Expression:
         return exp.Null()
     if isinstance(value, bool):
         return exp.Boolean(this=value)
-    if isinstance(value, (int, float)):
+    if isinstance(value, (int, float, decimal.Decimal)):
         return exp.Literal.number(value)
     if isinstance(value, dt.datetime):
         return exp.cast(exp.Literal.string(value.isoformat(sep=" ")), exp.DataType.build("TIMESTAMP", dialect="duckdb"))
@@ -81,7 +82,8 @@ def _convert_format(fmt: str) -> str:
 def _folded(node: exp.Expression) -> exp.Expression:
     """A constant expression (no column) evaluated once, as a literal: Spark's percentile needs
     its quantiles as a constant, and a bound ``list_transform(range(1, k), ...)`` is one."""
-    if node.find(exp.Column) is not None or isinstance(node, exp.Literal):
+    if node.find(exp.Column) is not None or isinstance(node, exp.Literal) or (
+            isinstance(node, exp.Array) and all(isinstance(e, exp.Literal) for e in node.expressions)):
         return node
     import duckdb
 
