@@ -137,6 +137,7 @@ class SparkConnection:
         self._cached: dict[str, object] = {}
         self._attached: dict[str, Path] = {}
         self._written: dict[str, list[tuple[str, Path]]] = {}
+        self._appended: dict[str, list] = {}  # INSERT INTO: the table's first frame, then each insert
         self._parent = None
 
     # -- the DuckDB-like surface ----------------------------------------------------------------
@@ -246,9 +247,9 @@ class SparkConnection:
         if qualifier and qualifier[0] in self._attached:
             self._write(qualifier[0], name, frame)
             return _Result(rows=[])
+        self._appended.pop(name, None)
         if kind == "TABLE":
-            frame = frame.cache()
-            frame.count()
+            frame = frame.cache()  # filled on first use (a count here would cost a job)
             old = self._cached.pop(name, None)
             frame.createOrReplaceTempView(name)
             if old is not None:
@@ -264,15 +265,14 @@ class SparkConnection:
         table = target if isinstance(target, exp.Table) else target.find(exp.Table)
         name = table.name
         new = self.spark.sql(to_spark(self._unqualify(tree.expression), self.variables))
-        current = self.spark.table(name)
-        new = new.toDF(*current.columns)
-        combined = current.unionByName(new).cache()
-        combined.count()
-        old = self._cached.pop(name, None)
+        parts = self._appended.setdefault(name, [self.spark.table(name)])
+        parts.append(new.toDF(*parts[0].columns))
+        # One flat union of every part, not a union of unions: no plan grows insert by insert,
+        # and nothing is cached here (the readers of the table are).
+        combined = parts[0]
+        for part in parts[1:]:
+            combined = combined.unionByName(part)
         combined.createOrReplaceTempView(name)
-        if old is not None:
-            old.unpersist()
-        self._cached[name] = combined
         return _Result(rows=[])
 
     def _write(self, alias: str, name: str, frame) -> None:
@@ -347,10 +347,8 @@ class SparkConnection:
             raise ConfigError(f"tables.{table.name}.format = {table.format!r} cannot be read by the Spark engine; "
                               "export the table as Parquet or CSV")
         frame = frame.withColumn("_path", F.url_decode(F.regexp_replace("_uri", r"^file:(//)?", ""))).drop("_uri")
-        frame = frame.join(F.broadcast(numbered), on="_path", how="left")
-        unmatched = frame.filter(F.col("file_index").isNull()).limit(1).collect()
-        if unmatched:
-            raise DataError(f"table {table.name}: Spark read a file outside the list: {unmatched[0]['_path']}")
+        # Spark reports each file as a URI; every one is in the list (Spark read only those).
+        frame = frame.join(F.broadcast(numbered), on="_path", how="inner")
         if table.format == "csv":
             # Rows within a file keep the order they were read in (one file's splits are read in
             # offset order); CSV rows are numbered over all files in file order, as DuckDB numbers them.
