@@ -16,7 +16,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from . import sources, sqlfiles, workspace
+from . import gates, sources, sqlfiles, workspace
 from .config import Settings
 from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
 from .engine import open_engine
@@ -46,6 +46,7 @@ class Rule:
 RULES: tuple[Rule, ...] = (
     Rule("missing_required", "reject"),
     Rule("unparseable_value", "reject"),
+    Rule("timestamp_beyond_horizon", "reject"),
     Rule("duplicate_row", "reject"),
     Rule("duplicate_key", "reject"),
     Rule("value_not_allowed", "reject"),
@@ -56,6 +57,8 @@ RULES: tuple[Rule, ...] = (
     Rule("customer_in_both_arms", "warn"),
     Rule("future_timestamp", "warn"),
     Rule("net_above_list", "warn"),
+    Rule("unparseable_optional", "warn"),
+    Rule("return_sign_mismatch", "warn"),
 )
 
 WARNING_EXAMPLES = 1000  # rows kept per warning rule in warning_rows; the summary counts them all
@@ -84,8 +87,27 @@ def input_fingerprint(settings: Settings) -> tuple[str, dict]:
         files[name] = sources.fingerprint_files(sources.resolve_files(settings, table))
     rules = {r.name: r.sql() for r in RULES}
     source_code = [Path(path).read_text(encoding="utf-8") for path in (sources.__file__, __file__)]
-    config = {k: v for k, v in settings.raw.items() if k in ("tables", "economics")}
+    config = {k: v for k, v in settings.raw.items() if k in ("tables", "economics", "checks", "gates")}
     return workspace.fingerprint(config, files, rules, source_code), files
+
+
+def _shifted(moment: dt.datetime, days: int) -> dt.datetime:
+    """``moment`` plus ``days``, held within the calendar (a huge horizon means no horizon)."""
+    try:
+        return moment + dt.timedelta(days=days)
+    except OverflowError:
+        return dt.datetime.max if days > 0 else dt.datetime.min
+
+
+def _allowed_text(settings: Settings, table: str, column: str, allowed: tuple[str, ...]) -> str:
+    """What a coded column may hold, in the export's own codes where the config maps them."""
+    mapping = settings.tables[table].values.get(column, {}) if table in settings.tables else {}
+    if not mapping:
+        return "one of " + ", ".join(allowed)
+    codes = ", ".join(f"{code} ({value})" for value, code in mapping.items())
+    unmapped = [v for v in allowed if v not in mapping]
+    rest = f", or {', '.join(unmapped)}" if unmapped else ""
+    return f"one of the export's codes {codes} (tables.{table}.values.{column}){rest}"
 
 
 def _accepted_select(con, name: str) -> str:
@@ -176,10 +198,16 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
     infos = sources.register(con, settings, progress=say)
     for statement in sources.staged_union_sql():
         con.execute(statement)
-    con.execute("SET VARIABLE allowed_arm = ?", [list(ARMS)])
-    con.execute("SET VARIABLE allowed_mechanic = ?", [list(MECHANICS)])
-    con.execute("SET VARIABLE allowed_audience = ?", [list(AUDIENCES)])
-    con.execute("SET VARIABLE checked_at = ?", [dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)])
+    for table, column, allowed in (("assignments", "arm", ARMS), ("promotions", "mechanic", MECHANICS),
+                                   ("promotions", "audience", AUDIENCES)):
+        con.execute(f"SET VARIABLE allowed_{column} = ?", [list(allowed)])
+        con.execute(f"SET VARIABLE allowed_{column}_text = ?", [_allowed_text(settings, table, column, allowed)])
+    now = dt.datetime.now(dt.timezone.utc).replace(tzinfo=None)
+    con.execute("SET VARIABLE checked_at = ?", [now])
+    horizon = settings.checks
+    con.execute("SET VARIABLE horizon_earliest = ?", [_shifted(now, -round(365.2425 * horizon.past_years))])
+    con.execute("SET VARIABLE horizon_latest = ?", [_shifted(now, horizon.future_days)])
+    con.execute("SET VARIABLE horizon_promotion_latest = ?", [_shifted(now, horizon.promotion_future_days)])
     con.execute(
         "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
         "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
@@ -191,6 +219,12 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
                 "CREATE OR REPLACE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions AS s "
                 "ANTI JOIN (SELECT _row_id FROM check_hits WHERE table_name = 'promotions' "
                 "AND severity = 'reject') AS h ON s._row_id = h._row_id"
+            )
+            # Why a promotion's row was rejected: the rows that name it then say so.
+            con.execute(
+                "CREATE OR REPLACE TEMP VIEW rejected_promotions AS SELECT s.promotion_id, h.rule, h.rule_order, "
+                "h.detail FROM staged_promotions AS s INNER JOIN check_hits AS h ON h.table_name = 'promotions' "
+                "AND h.severity = 'reject' AND s._row_id = h._row_id"
             )
             promotions_ready = True
         say(f"rule {rule.name}")
@@ -214,6 +248,10 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
         con.execute(f"CREATE OR REPLACE TEMP VIEW {q('accepted_' + name)} AS {_accepted_select(con, name)}")
     summary = _summary(con, infos)
     problems = _problems(summary, con)
+    if not problems:
+        # The data can be read; can it answer the question? (toolkit.gates)
+        say("sanity gates")
+        problems = gates.evaluate(con, settings, summary)
     with workspace.atomic_database(settings, workspace.CHECKED) as target:
         say("writing checked tables")
         con.execute("ATTACH ? AS out", [str(target)])

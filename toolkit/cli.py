@@ -10,14 +10,17 @@ arguments, 3 bad data.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
+import traceback
 import warnings
 
 from rich.markup import escape
 
 from . import __version__
 from .console import err_console
-from .errors import DataWarning, LiftlagError, StatisticalWarning
+from .errors import DataWarning, StatisticalWarning
+from .failures import INTERRUPTED_MESSAGE, describe, interrupt_guard, interrupt_requested
 
 
 class _Parser(argparse.ArgumentParser):
@@ -57,28 +60,38 @@ def main(argv: list[str] | None = None) -> int:
         parser.print_help()
         return 2
     handler = args.handler
-    try:
-        with warnings.catch_warnings(record=True) as caught:
-            warnings.simplefilter("always")
-            code = handler(args)
-        for w in caught:
-            if issubclass(w.category, (DataWarning, StatisticalWarning)):
-                err_console.print(f"[yellow]warning:[/] {escape(str(w.message))}")
-        return code
-    except LiftlagError as exc:
-        err_console.print(f"[bold red]error:[/] {escape(str(exc))}")
-        return exc.exit_code
-    except BrokenPipeError:  # output piped into `head` and the like
-        return 0
-    except KeyboardInterrupt:
-        err_console.print("interrupted; nothing was left half-written")
-        return 1
-    except RuntimeError as exc:
-        # DuckDB turns Ctrl-C inside a query into an error of its own.
-        if "interrupt" not in str(exc).lower():
-            raise
-        err_console.print("interrupted; nothing was left half-written")
-        return 1
+    # Every exception ends in a message and the documented exit code (toolkit.failures).
+    with interrupt_guard():
+        try:
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always")
+                try:
+                    code = handler(args)
+                finally:
+                    _print_warnings(caught)
+            if interrupt_requested():  # Ctrl-C that a library swallowed: still an interrupted run
+                raise KeyboardInterrupt
+            return code
+        except BrokenPipeError:  # output piped into `head` and the like
+            return 0
+        except SystemExit as exc:
+            return int(exc.code or 0) if not isinstance(exc.code, str) else 2
+        except BaseException as exc:  # noqa: BLE001 - mapped to a message, never a traceback
+            failure = describe(exc, args)
+            if os.environ.get("LIFTLAG_DEBUG"):
+                traceback.print_exception(exc)
+            prefix = "" if failure.message == INTERRUPTED_MESSAGE else "[bold red]error:[/] "
+            try:
+                err_console.print(f"{prefix}{escape(failure.message)}")
+            except Exception:  # the terminal itself failed: plain text
+                print(failure.message, file=sys.stderr)
+            return failure.exit_code
+
+
+def _print_warnings(caught) -> None:
+    for w in caught:
+        if issubclass(w.category, (DataWarning, StatisticalWarning)):
+            err_console.print(f"[yellow]warning:[/] {escape(str(w.message))}")
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -33,6 +33,7 @@ class TableSettings:
     header: bool = True
     table: str | None = None  # for format = "duckdb": the table inside the database file
     hive_partitioning: bool | None = None
+    encoding: str | None = None  # CSV only: utf-8 (default), utf-16 or latin-1
 
     def export_column(self, contract_name: str) -> str:
         return self.columns.get(contract_name, contract_name)
@@ -85,6 +86,9 @@ class TimingSettings:
     cadence_tolerance_days: int = 2
     min_regular_share: float = 0.75
     late_period_days: int = 14
+    anticipation_min_exposed_customers: int = 100
+    anticipation_min_starts: int = 3
+    min_arm_customers: int = 30
 
 
 # Settings that take one of a few words.
@@ -93,6 +97,26 @@ CHOICES = {
     "timing.expected_starts": ("cadence", "observed"),
     "engine.kind": ("duckdb", "spark"),
 }
+
+
+@dataclass(frozen=True)
+class CheckSettings:
+    """The horizon of the ``timestamp_beyond_horizon`` rule: no single row may stretch the timeline."""
+
+    future_days: int = 1  # order lines and assignments later than the check's time + this: rejected
+    past_years: int = 30  # any timestamp earlier than the check's time - this: rejected
+    promotion_future_days: int = 731  # a promotion starting or ending later than the check's time + this: rejected
+
+
+@dataclass(frozen=True)
+class GateSettings:
+    """Sanity gates between the check and any analysis (``toolkit.gates``): below a threshold, exit 3."""
+
+    min_lines_accepted_share: float = 0.9  # of order lines (and of assignments) read
+    min_assigned_found_share: float = 0.5  # of assigned customers who appear in the accepted order lines
+    min_promotions_kept_share: float = 1.0  # of promotions named by order lines that keep some of their lines
+    date_margin_days: int = 366  # how far outside the central 98% of order dates a line may lie
+    max_outlying_date_share: float = 0.0  # of order lines allowed beyond that margin
 
 
 @dataclass(frozen=True)
@@ -126,6 +150,8 @@ class Settings:
     campaign: CampaignSettings = CampaignSettings()
     timing: TimingSettings = TimingSettings()
     report: ReportSettings = ReportSettings()
+    checks: CheckSettings = CheckSettings()
+    gates: GateSettings = GateSettings()
     workspace: WorkspaceSettings = WorkspaceSettings()
     engine: EngineSettings = EngineSettings()
     raw: dict[str, Any] = field(default_factory=dict, repr=False)
@@ -149,11 +175,15 @@ _SECTIONS = {
     "campaign": CampaignSettings,
     "timing": TimingSettings,
     "report": ReportSettings,
+    "checks": CheckSettings,
+    "gates": GateSettings,
     "workspace": WorkspaceSettings,
     "engine": EngineSettings,
 }
 _TOP_KEYS = ("tables", *_SECTIONS)
-_TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning")
+_TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning",
+               "encoding")
+ENCODINGS = ("utf-8", "utf-16", "latin-1")
 _MEMORY = re.compile(r"^\s*\d+(\.\d+)?\s*(B|KB|MB|GB|TB|KiB|MiB|GiB|TiB)\s*$", re.I)
 
 
@@ -250,10 +280,16 @@ def _parse_table(path: Path, name: str, body: Any) -> TableSettings:
     hive = body.get("hive_partitioning")
     if hive is not None:
         _expect(path, f"{where}.hive_partitioning", hive, bool, "true or false")
+    encoding = body.get("encoding")
+    if encoding is not None:
+        _expect(path, f"{where}.encoding", encoding, str, f"one of {', '.join(ENCODINGS)}")
+        if encoding.lower() not in ENCODINGS:
+            raise ConfigError(f"{path}: key '{where}.encoding' must be one of {', '.join(ENCODINGS)}, found {encoding!r}")
+        encoding = encoding.lower()
     return TableSettings(
         name=name, path=file_path, format=fmt, columns=dict(columns),
         values={k: dict(v) for k, v in values.items()}, formats=dict(formats),
-        delimiter=delimiter, header=header, table=table, hive_partitioning=hive,
+        delimiter=delimiter, header=header, table=table, hive_partitioning=hive, encoding=encoding,
     )
 
 
@@ -286,7 +322,9 @@ def _parse_section(path: Path, name: str, body: Any):
                 raise ConfigError(f"{path}: key '{full}' must be one of {', '.join(CHOICES[full])}, found {value!r}")
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
-                     "baseline_threshold", "target_lift", "min_regular_share"):
+                     "baseline_threshold", "target_lift", "min_regular_share",
+                     "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
+                     "max_outlying_date_share"):
             kwargs[key] = _share(path, full, value)
         elif key == "spark_conf":
             _expect(path, full, value, dict, "a table of Spark settings, e.g. \"spark.driver.memory\" = \"4g\"")
@@ -303,7 +341,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = float(a)
         elif isinstance(default, int) or key == "threads":
             v = _expect(path, full, value, int, "a whole number")
-            if v < 0 or (v == 0 and key not in ("seed",)):
+            if v < 0 or (v == 0 and key not in ("seed", "future_days")):
                 raise ConfigError(f"{path}: key '{full}' must be a positive whole number, found {value!r}")
             kwargs[key] = v
         else:
@@ -366,8 +404,26 @@ def load(config_path: str | Path) -> Settings:
     path = Path(config_path).expanduser().resolve()
     if not path.exists():
         raise ConfigError(f"config file {path} does not exist; write one with `liftlag init EXPORT_DIR`")
+    if path.is_dir():
+        hint = " (it holds a liftlag.toml: give that file)" if (path / "liftlag.toml").is_file() else ""
+        raise ConfigError(f"-c {path} is a folder, not a config file{hint}; give the liftlag.toml file itself")
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"config file {path} cannot be read: {exc.strerror or exc}; check its permissions") from None
+    try:
+        # utf-8-sig: a byte-order mark written by some editors is accepted and dropped.
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[: exc.start].count(b"\n") + 1
+        column = exc.start - (raw.rfind(b"\n", 0, exc.start) + 1) + 1
+        raise ConfigError(
+            f"{path}: line {line}, column {column}: byte 0x{raw[exc.start]:02x} is not UTF-8 (the file was saved in "
+            f"another encoding, such as Latin-1); save it as UTF-8"
+        ) from None
+    try:
+        data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"{path}: not valid TOML: {exc}") from None
+        raise ConfigError(f"{path}: not valid TOML: {exc}; fix that line (strings need double quotes, "
+                          f"sections [brackets])") from None
     return parse(data, path)

@@ -37,7 +37,7 @@ def print_check(result) -> None:
         if result.examples is not None and len(result.examples):
             console.print("examples (first rows of each reason):")
             for row in result.examples.itertuples(index=False):
-                where = f"{Path(row.source_file).name} row {row.row_id}" if row.source_file else f"row {row.row_id}"
+                where = f"{shown_file(row.source_file)} row {row.row_id}" if row.source_file else f"row {row.row_id}"
                 console.print(f"  {row.table} / {row.reason}: {where}: {row.detail} — {row.raw_values}", markup=False)
     if len(result.warnings):
         warn = Table(title="warnings (rows kept)")
@@ -46,6 +46,18 @@ def print_check(result) -> None:
         for row in result.warnings.itertuples(index=False):
             warn.add_row(escape(row[0]), escape(row[1]), f"{row[2]:,}")
         console.print(warn)
+
+
+def shown_file(source_file: str) -> str:
+    """A file's name with its partition folders (``month=2025-01/part-0.parquet``), which tell
+    apart the many files that share one name in a partitioned export."""
+    path = Path(str(source_file))
+    parts = [path.name]
+    for parent in path.parents:
+        if "=" not in parent.name:
+            break
+        parts.insert(0, parent.name)
+    return "/".join(parts)
 
 
 def run_build(settings, force: bool = False):

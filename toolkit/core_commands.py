@@ -48,6 +48,10 @@ def cmd_check(args) -> int:
     from .results import write_tables
 
     settings = config.load(args.config)
+    if args.out:
+        from .results import check_out_dir
+
+        check_out_dir(args.out)
     with console.status("checking the export…") as status:
         result = checks.run(settings, progress=lambda text: status.update(f"check: {text}"))
     print_check(result)
@@ -89,7 +93,8 @@ def cmd_sql(args) -> int:
         from .config import Settings
 
         parameters = panels.parameters(Settings(config_path=Path("liftlag.toml"), tables={}))
-    values = ", ".join(f"{k} = {v}" for k, v in parameters.items())
+    # An unset setting is bound as SQL NULL: say so in SQL's words, not Python's.
+    values = ", ".join(f"{k} = {'NULL (not set)' if v is None else v}" for k, v in parameters.items())
     for name in names:
         sql = panels.panel_sql(name)
         text = sql if dialect == "duckdb" else transpile(sql, dialect, parameters)

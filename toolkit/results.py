@@ -18,6 +18,18 @@ import pandas as pd
 from . import __version__
 
 
+def check_out_dir(out_dir, option: str = "--out") -> Path:
+    """Refuse, before any work, an output folder that is a file or lies under one (exit 2)."""
+    from .errors import ConfigError
+
+    path = Path(out_dir).expanduser()
+    for part in (path, *path.parents):
+        if part.exists() and not part.is_dir():
+            where = "is a file" if part == path else f"lies under {part}, which is a file"
+            raise ConfigError(f"{option} {out_dir}: {where}; give {option} a folder (it is created if missing)")
+    return path
+
+
 def write_tables(out_dir: Path, tables: dict[str, pd.DataFrame]) -> list[Path]:
     """Write each DataFrame as ``<name>.parquet`` into ``out_dir`` (created if needed)."""
     out_dir = Path(out_dir)

@@ -3,9 +3,11 @@
 Each configured table is read once, in one pass, into a temporary table ``stage_<table>``: every
 contract column under its contract name and type (TRY_CAST / TRY_STRPTIME, so an unparseable value
 becomes a rejected row, never a crash or a silent NULL), value mappings applied, and the row-level
-facts the checks need: ``_missing`` and ``_unparseable`` (the names of the offending columns,
-comma-separated, empty when none) and ``_raw_problem`` (the original text of the row, kept only
-for rows with such a fault). The view ``staged_<table>`` adds ``_row_id`` (the stage's row
+facts the checks need: ``_missing`` (the names of required columns left empty), ``_unparseable``
+(``column = 'text'`` for each required value that does not parse) and ``_unparseable_optional``
+(the same for optional values, which are left NULL and only warned about) — comma-separated,
+empty when none — and ``_raw_problem`` (the original text of the row, kept only for rows with
+such a fault). The view ``staged_<table>`` adds ``_row_id`` (the stage's row
 number), ``_row_hash`` (of all values, for the exact-duplicate rule) and ``_raw_values`` (the
 original text, or the typed values as text where every value parsed). Tables that are optional
 and not configured get an empty staged view of the same shape.
@@ -16,6 +18,7 @@ from __future__ import annotations
 import dataclasses
 import difflib
 import glob
+import warnings
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -25,7 +28,11 @@ from .config import Settings, TableSettings
 from .contract import INPUT_TABLES, InputTable
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
-from .errors import DataError
+from .errors import ConfigError, DataError, DataWarning
+from .failures import duckdb_cause
+
+# Columns the reader adds; never the export's own.
+READER_COLUMNS = ("_source_file", "file_row_number", "file_index")  # file_index: the Spark reader's own
 
 
 @dataclass(frozen=True)
@@ -57,7 +64,8 @@ def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
         else:
             files = [full] if p.is_file() else []
     if not files:
-        raise DataError(
+        # The config names the files: a path that matches nothing is a config mistake (exit 2).
+        raise ConfigError(
             f"{settings.config_path}: tables.{table.name}.path = {table.path!r} matches no file "
             f"(looked for {full}); check the path, which is relative to the config's folder"
         )
@@ -79,6 +87,10 @@ def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[st
         return f"read_parquet({files_expr}, union_by_name = true, filename = '_source_file', file_row_number = true{hive})"
     if table.format == "csv":
         opts = ["all_varchar = true", f"header = {str(table.header).lower()}", "filename = '_source_file'", "union_by_name = true"]
+        if table.encoding is not None:
+            evar = f"liftlag_encoding_{table.name}"
+            con.execute(f"SET VARIABLE {evar} = ?", [table.encoding])
+            opts.append(f"encoding = getvariable('{evar}')")
         if table.delimiter is not None:
             dvar = f"liftlag_delim_{table.name}"
             con.execute(f"SET VARIABLE {dvar} = ?", [table.delimiter])
@@ -99,9 +111,59 @@ def _describe(con: duckdb.DuckDBPyConnection, reader: str, table: TableSettings,
     try:
         rows = con.execute(f"DESCRIBE SELECT * FROM {reader}").fetchall()
     except duckdb.Error as exc:
-        first = str(exc).strip().splitlines()[0]
-        raise DataError(f"table {table.name}: cannot read {files[0]}{' (and others)' if len(files) > 1 else ''}: {first}") from None
+        raise DataError(f"table {table.name}: cannot read {files[0]}{' (and others)' if len(files) > 1 else ''}: "
+                        f"{read_hint(exc, table)}") from None
     return [(r[0], r[1]) for r in rows]
+
+
+def read_hint(exc: Exception, table: TableSettings) -> str:
+    """DuckDB's full cause of a read failure, with what to do for the common ones."""
+    cause = duckdb_cause(exc)
+    lower = cause.lower()
+    if "sniffing" in lower or "automatically detect" in lower:
+        hint = (f"the file's layout (delimiter, quoting, line endings) could not be detected: check that every line "
+                f"has the same number of fields and the same line ending; set tables.{table.name}.delimiter if it is "
+                f"not a comma")
+    elif "not utf-8" in lower or "invalid unicode" in lower:
+        hint = f"set tables.{table.name}.encoding = \"latin-1\" (or utf-16), or export the file as UTF-8"
+    elif "unterminated quote" in lower or "unterminated quoted" in lower:
+        hint = "a quoted field is not closed (an unbalanced \" in a value); fix the quoting in the export"
+    elif "maximum line size" in lower or "max_line_size" in lower:
+        hint = "one field is longer than the reader allows (a broken line or an unclosed quote); fix the export"
+    elif "parquet" in lower or "footer" in lower or "magic" in lower:
+        hint = "the Parquet file is damaged or not Parquet; export it again"
+    else:
+        hint = "fix or export the file again"
+    return f"{cause}; {hint}"
+
+
+def _duplicate_header(con, table: TableSettings, contract: InputTable, reader: str, files: list[str]) -> None:
+    """A CSV header naming one column twice: an error when it is a contract column, else a warning."""
+    if table.format != "csv" or not table.header:
+        return
+    opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
+    opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
+    con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
+    try:
+        row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
+    except duckdb.Error:
+        return  # the full read reports the cause
+    if not row:
+        return
+    names = [str(v).strip() for v in row[0] if v is not None]
+    repeated = sorted({n for n in names if names.count(n) > 1})
+    if not repeated:
+        return
+    wanted = {table.export_column(c.name) for c in contract.columns}
+    clash = [n for n in repeated if n in wanted]
+    if clash:
+        raise DataError(
+            f"table {table.name}: the header of {files[0]} names column '{clash[0]}' {names.count(clash[0])} times; "
+            f"it is not clear which one to read: rename or drop the copies in the export"
+        )
+    warnings.warn(
+        f"table {table.name}: the header of {files[0]} names {', '.join(repr(n) for n in repeated)} more than once; "
+        f"the copies are read as {repeated[0]}_1, ... (not used by liftlag unless mapped)", DataWarning, stacklevel=2)
 
 
 def _match_names_loosely(table: TableSettings, contract: InputTable, found: list[str]) -> TableSettings:
@@ -119,13 +181,15 @@ def _match_names_loosely(table: TableSettings, contract: InputTable, found: list
 
 
 def _check_columns(settings: Settings, table: TableSettings, contract: InputTable, found: list[str], files: list[str]) -> None:
+    found = [c for c in found if c not in READER_COLUMNS]
     for name, wanted in table.columns.items():
-        # A mapping line names a column on purpose: one the export lacks is a mistake, even for
-        # an optional column (otherwise, say, list_amount would be silently derived instead).
-        if wanted not in found and not contract.column_is_required(name):
+        # A mapping line names a column on purpose: one the export lacks is a mistake in the
+        # config (exit 2), even for an optional column (otherwise, say, list_amount would be
+        # silently derived instead).
+        if wanted not in found:
             close = difflib.get_close_matches(wanted, found, n=3, cutoff=0.4)
             hint = f"closest columns: {', '.join(close)}" if close else f"columns found: {', '.join(found[:12])}"
-            raise DataError(
+            raise ConfigError(
                 f"table {table.name}: tables.{table.name}.columns.{name} = {wanted!r} names a column that is not "
                 f"in {files[0]}; {hint}; fix the name or remove the line"
             )
@@ -139,7 +203,7 @@ def _check_columns(settings: Settings, table: TableSettings, contract: InputTabl
     wanted = table.export_column(name)
     close = difflib.get_close_matches(wanted, found, n=3, cutoff=0.4)
     hint = f"closest columns: {', '.join(close)}" if close else f"columns found: {', '.join(found[:12])}"
-    single = len([c for c in found if c != "_source_file"]) == 1
+    single = len(found) == 1
     delimiter_hint = (
         f"; only one column was found, so the file may use another delimiter: set tables.{table.name}.delimiter"
         if single and table.format == "csv" else ""
@@ -180,7 +244,15 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
 
     if table.formats.get(column_name):
         var = f"liftlag_fmt_{table.name}_{column_name}"
-        con.execute(f"SET VARIABLE {var} = ?", [table.formats[column_name]])
+        fmt = table.formats[column_name]
+        try:
+            con.execute("SELECT try_strptime('2000-01-01', ?)", [fmt]).fetchall()
+        except duckdb.Error as exc:
+            raise ConfigError(
+                f"{table.name}: tables.{table.name}.formats.{column_name} = {fmt!r} is not a format DuckDB knows: "
+                f"{duckdb_cause(exc)}; use strptime codes such as \"%Y-%m-%d %H:%M:%S\" or \"%d/%m/%Y\""
+            ) from None
+        con.execute(f"SET VARIABLE {var} = ?", [fmt])
         typed = f"TRY_STRPTIME(trim({text}), getvariable('{var}'))"
     elif column_type == "VARCHAR":
         # Ids and codes are compared exactly downstream: in text files, surrounding spaces are dropped.
@@ -208,7 +280,7 @@ def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS BIGINT) AS _row_id, "
         f"CAST(NULL AS BIGINT) AS _file_row, "
-        f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, "
+        f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, '' AS _unparseable_optional, "
         f"CAST(NULL AS UBIGINT) AS _row_hash, CAST(NULL AS VARCHAR) AS _raw_values WHERE false"
     )
 
@@ -230,13 +302,14 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         files = resolve_files(settings, table)
         reader = _reader(con, table, files)
         described = _describe(con, reader, table, files)
+        _duplicate_header(con, table, contract, reader, files)
         found = [c for c, _ in described]
         found_types = dict(described)
         table = _match_names_loosely(table, contract, found)
         _check_columns(settings, table, contract, found, files)
         present = [c for c in contract.columns if table.export_column(c.name) in found]
         mapped = {table.export_column(c.name) for c in present}
-        extras = [c for c in found if c not in mapped and c not in ("_source_file", "file_row_number", "file_index")] if contract.extra_columns else []
+        extras = [c for c in found if c not in mapped and c not in READER_COLUMNS] if contract.extra_columns else []
         if progress:
             progress(f"reading {name}")
         # Parquet is read again by each step that needs it (a scan costs less than holding tens
@@ -252,8 +325,10 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
             con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
             rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:
-            first = str(exc).strip().splitlines()[0]
-            raise DataError(f"table {name}: cannot read {files[0]}: {first}") from None
+            if isinstance(exc, duckdb.InterruptException):
+                raise
+            where = files[0] if len(files) == 1 else f"{files[0]} (or another of its {len(files)} files)"
+            raise DataError(f"table {name}: cannot read {where}: {read_hint(exc, table)}") from None
         finally:
             con.execute("SET preserve_insertion_order = false")
         _define_staged_view(con, contract, extras, lazy=lazy)
@@ -271,6 +346,7 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     rows whose typed values cannot stand for what was read).
     """
     renamed, typed_cols, missing_parts, unparseable_parts, raw_texts = [], [], [], [], []
+    optional_parts = []  # (condition, column, original text): an optional value that does not parse
     for c in contract.columns:
         if c.name not in present:
             typed_cols.append(f"CAST(NULL AS {c.type}) AS {q(c.name)}")
@@ -284,14 +360,20 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
         raw_texts.append(f"{q(c.name)} := {text}")
         if c.required:
             missing_parts.append((blank, c.name))
-        # A value that is present but does not parse is unparseable.
-        unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name))
+        # A value that is present but does not parse is unparseable: a required one rejects its
+        # row; an optional one is left empty (NULL) and warned about, so it never drops the row
+        # nor, through it, the rows that reference it.
+        if c.required:
+            unparseable_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name, text))
+        else:
+            optional_parts.append((f"NOT {blank} AND {q(c.name)} IS NULL", c.name, text))
     renamed += [f"{q(e)} AS {q('x_' + e)}" for e in extras]
     raw_texts += [f"{q(e)} := CAST({q('x_' + e)} AS VARCHAR)" for e in extras]
     extra_cols = [f"{q('x_' + e)} AS {q(e)}" for e in extras]
     names = [q(c.name) for c in contract.columns] + [q(e) for e in extras]
     missing = _names_where(missing_parts)
-    unparseable = _names_where(unparseable_parts)
+    unparseable = _values_where(unparseable_parts)  # the value as written, so the reason shows it
+    unparseable_optional = _values_where(optional_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
     # The row key: the file's place in the sorted file list, then the row in the file; the
     # same numbers on every engine, so "the first copy" is the same row everywhere.
@@ -299,12 +381,13 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
            "file_row_number + 1 AS _file_row, ") if lazy else ""
     read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
-    facts = f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable FROM ({typed})"
-    problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' THEN {raw_struct} END AS _raw_problem "
-               f"FROM ({facts})")
+    facts = (f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable, "
+             f"{unparseable_optional} AS _unparseable_optional FROM ({typed})")
+    problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' OR _unparseable_optional <> '' "
+               f"THEN {raw_struct} END AS _raw_problem FROM ({facts})")
     keys = "_row_key, _file_row, " if lazy else ""
     return (
-        f"SELECT {keys}_source_file, {', '.join(names)}, _missing, _unparseable, _raw_problem, "
+        f"SELECT {keys}_source_file, {', '.join(names)}, _missing, _unparseable, _unparseable_optional, _raw_problem, "
         f"hash({', '.join(names)}, _raw_problem) AS _row_hash FROM ({problem})"
     )
 
@@ -322,6 +405,18 @@ def _names_where(conditions: list[tuple[str, str]]) -> str:
     return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
 
 
+def _values_where(conditions: list[tuple[str, str, str]]) -> str:
+    """``column = 'original text'`` for each column whose value did not parse ('' when none)."""
+    if not conditions:
+        return "''"
+    any_holds = " OR ".join(f"({cond})" for cond, _, _ in conditions)
+    parts = ", ".join(
+        "CASE WHEN " + cond + " THEN '" + name + " = ''' || left(" + text + ", 40) || '''' END"
+        for cond, name, text in conditions
+    )
+    return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
+
+
 def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool = False) -> None:
     """``staged_<table>``: the stage with its row key, its row in the file, a row hash and the
     values as text."""
@@ -331,7 +426,7 @@ def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool
     keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS BIGINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
-        f"_source_file, {cols}, _missing, _unparseable, _row_hash, "
+        f"_source_file, {cols}, _missing, _unparseable, _unparseable_optional, _row_hash, "
         f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name)}"
     )
 
@@ -340,7 +435,8 @@ def staged_union_sql() -> list[str]:
     """``staged_all``: the row-level facts of every table, for table-independent rules; and
     ``staged_all_sources``: each row's file and original values, for the rejects."""
     parts = [
-        f"SELECT '{name}' AS table_name, _row_id, _file_row, _missing, _unparseable, _row_hash, _raw_values FROM {q('staged_' + name)}"
+        f"SELECT '{name}' AS table_name, _row_id, _file_row, _missing, _unparseable, _unparseable_optional, _row_hash, "
+        f"_raw_values FROM {q('staged_' + name)}"
         for name in INPUT_TABLES
     ]
     with_files = [
@@ -360,3 +456,33 @@ def fingerprint_files(files) -> list[dict]:
         st = Path(f).stat()
         out.append({"path": str(f), "bytes": st.st_size, "modified_ns": st.st_mtime_ns})
     return out
+
+
+def locate_unreadable(settings: Settings) -> tuple[str, str, str] | None:
+    """(table, file, cause) of the first export file that cannot be read through, or None.
+
+    Only on the failure path: Parquet is read lazily, so a damaged data page surfaces in whatever
+    query first decodes it, with a message that may not name the file. Each file is decoded in
+    full here, one at a time, to name it.
+    """
+    from .engine.duckdb import connect as engine_connect
+
+    con = engine_connect(settings)
+    try:
+        for name, table in settings.tables.items():
+            if table.format != "parquet":
+                continue
+            try:
+                files = resolve_files(settings, table)
+            except (ConfigError, DataError):
+                continue
+            for f in files:
+                try:
+                    con.execute("SELECT max(hash(COLUMNS(*))) FROM read_parquet(?)", [f]).fetchall()
+                except duckdb.InterruptException:
+                    raise
+                except duckdb.Error as exc:
+                    return name, f, duckdb_cause(exc)
+    finally:
+        con.close()
+    return None

@@ -1,10 +1,12 @@
 -- Table: timing_calendar — one row per day from the first purchase to the day after the export's
--- end: whether a broadcast sale runs, whether the day lies in the anticipation window before an
--- expected campaign start, the calendar month, and a running count of the days on which any of
--- these changes (spells are cut at those days by number, without a range join).
+-- end: whether a broadcast sale runs, which anticipation window before an expected campaign start
+-- the day lies in (window_no, 0 for none), the calendar month, and a running count of the days on
+-- which any of these changes (spells are cut at those days by number, without a range join).
 -- Reads: timing_purchase_days, checked.promotions,
---        timing_expected_starts (start_day INTEGER: expected starts from the cadence, days since 1970-01-01)
--- Parameters: getvariable('timing_anticipation_days')
+--        timing_expected_starts (window_no INTEGER, start_day INTEGER, window_from_day INTEGER,
+--        window_to_day INTEGER: the windows before the expected starts, already cut clear of other
+--        promotions' running and after-windows, days since 1970-01-01, inclusive)
+-- Parameters: none
 CREATE OR REPLACE TEMP TABLE timing_calendar AS
 WITH span AS (
     SELECT min(day_no) AS first_day, max(day_no + gap_days) + 1 AS last_day
@@ -30,10 +32,10 @@ flags AS (
         EXISTS (
             SELECT 1 FROM broadcasts AS b WHERE d.day_no BETWEEN b.from_day AND b.to_day
         ) AS is_broadcast_running,
-        EXISTS (
-            SELECT 1 FROM timing_expected_starts AS x
-            WHERE d.day_no BETWEEN x.start_day - getvariable('timing_anticipation_days') AND x.start_day - 1
-        ) AS is_anticipation_window,
+        coalesce((
+            SELECT max(x.window_no) FROM timing_expected_starts AS x
+            WHERE d.day_no BETWEEN x.window_from_day AND x.window_to_day
+        ), 0) AS window_no,
         CAST(year(DATE '1970-01-01' + d.day_no) * 12 + month(DATE '1970-01-01' + d.day_no) - 1 AS INTEGER) AS month_no
     FROM days AS d
 ),
@@ -43,7 +45,7 @@ marked AS (
         *,
         coalesce(
             is_broadcast_running <> lag(is_broadcast_running) OVER by_day
-            OR is_anticipation_window <> lag(is_anticipation_window) OVER by_day
+            OR window_no <> lag(window_no) OVER by_day
             OR month_no <> lag(month_no) OVER by_day,
             false
         ) AS is_change
@@ -54,7 +56,8 @@ marked AS (
 SELECT
     day_no,
     is_broadcast_running,
-    is_anticipation_window,
+    window_no > 0 AS is_anticipation_window,
+    CAST(window_no AS INTEGER) AS window_no,
     month_no,
     is_change,
     CAST(sum(CAST(is_change AS INTEGER)) OVER (ORDER BY day_no ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW) AS INTEGER)

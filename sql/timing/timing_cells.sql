@@ -1,6 +1,7 @@
 -- Table: timing_cells — sufficient statistics of the discrete-time hazard model: customer-days at
 -- risk and next purchases per customer block x period (time since the purchase day, in the
--- periods of timing_periods) x calendar month x purchase rate class x covariate cell. A spell that spans several
+-- periods of timing_periods) x calendar month x anticipation window x purchase rate class x covariate
+-- cell. A spell that spans several
 -- periods is cut at their edges; a customer-day is one binomial trial.
 -- Reads: timing_spells, timing_periods (period INTEGER, period_from INTEGER, period_to INTEGER:
 --        days since the purchase day, inclusive), timing_period_days (days_since INTEGER, period INTEGER)
@@ -8,8 +9,8 @@
 CREATE OR REPLACE TEMP TABLE timing_cells AS
 WITH spells AS (
     SELECT
-        block, start_days, stop_days, is_event, month_no, rate_class, promotion_available, in_dip,
-        in_dip_during_promotion, in_anticipation, coupons_received
+        block, start_days, stop_days, is_event, month_no, window_no, rate_class, promotion_available, in_dip,
+        in_dip_during_promotion, in_anticipation, coupons_received, is_exposed
     FROM timing_spells
 ),
 
@@ -38,12 +39,14 @@ SELECT
     block,
     period,
     month_no,
+    window_no,
     rate_class,
     promotion_available,
     in_dip,
     in_dip_during_promotion,
     in_anticipation,
     coupons_received,
+    is_exposed,
     CAST(sum(days_at_risk) AS BIGINT) AS at_risk,
     CAST(count(*) FILTER (WHERE is_event_here) AS BIGINT) AS events
 FROM overlap

@@ -8,7 +8,13 @@
 -- holds purchase days with less than min_history_days of history (too little to tell a rate).
 -- The class adjusts both hazard models for customers' different purchase rates, which would
 -- otherwise pull every hazard ratio toward 1 (frequent buyers leave the risk set first).
--- Reads: purchase_gaps (panel), checked.promotions
+-- The rate is measured before the exposure: a purchase day inside an exposure period (a
+-- promotion's running window and the window after it, timing_exposure_periods) takes the rate of
+-- the customer's last purchase day before that period, so the campaign's own purchases never
+-- raise the rate its dip is compared against.
+-- Reads: purchase_gaps (panel), checked.promotions,
+--        timing_exposure_periods (from_day INTEGER, to_day INTEGER: merged, non-overlapping,
+--        inclusive, days since 1970-01-01)
 -- Parameters: getvariable('timing_n_blocks')  number of customer blocks for the bootstrap
 --             getvariable('timing_seed')      seed of the block hash
 --             getvariable('timing_dip_after') 'targeted': a redemption is an order carrying a
@@ -67,12 +73,32 @@ rated AS (
     FROM history
 ),
 
+placed AS (
+    SELECT r.*, x.from_day AS exposure_from_day
+    FROM rated AS r
+    LEFT JOIN timing_exposure_periods AS x ON r.day_no BETWEEN x.from_day AND x.to_day
+),
+
+lagged AS (
+    SELECT *, lag(purchase_rate) OVER (PARTITION BY customer_id ORDER BY day_no) AS previous_rate
+    FROM placed
+),
+
+frozen AS (
+    SELECT
+        * EXCLUDE (purchase_rate),
+        CASE WHEN exposure_from_day IS NULL THEN purchase_rate
+             ELSE first_value(previous_rate) OVER (PARTITION BY customer_id, exposure_from_day ORDER BY day_no)
+        END AS purchase_rate
+    FROM lagged
+),
+
 edges AS (
     SELECT quantile_cont(
         purchase_rate,
         list_transform(range(1, getvariable('timing_rate_classes')), lambda k: k / getvariable('timing_rate_classes'))
     ) AS rate_edges
-    FROM rated
+    FROM frozen
     WHERE purchase_rate IS NOT NULL
 )
 
@@ -92,5 +118,5 @@ SELECT
     CAST(CASE WHEN r.purchase_rate IS NULL THEN 0
               ELSE 1 + array_length(list_filter(coalesce(e.rate_edges, []), lambda edge: edge < r.purchase_rate)) END
          AS INTEGER) AS rate_class
-FROM rated AS r
+FROM frozen AS r
 CROSS JOIN edges AS e

@@ -6,6 +6,11 @@
 --   in_dip_during_promotion within dip_days after a redemption while a promotion is available
 --   in_anticipation         in the window before an expected campaign start, the customer has
 --                           received at least min_coupons coupons and holds none
+--   is_exposed              the customer has received at least min_coupons coupons (the exposed
+--                           group of the anticipation contrast, in and out of the windows)
+--   window_no               the anticipation window the day lies in (0: none); the hazard models
+--                           take it as a factor, so calendar effects shared by everyone in a
+--                           window cancel and in_anticipation is an exposed x window interaction
 --   coupons_received        coupons received so far, capped at coupons_cap
 --   month_no                calendar month (year * 12 + month - 1), for the seasonal adjustment
 --   rate_class              the customer's recent purchase rate class on the purchase day
@@ -112,6 +117,8 @@ flagged AS (
         p.piece_to - p.purchase_day - 1 AS stop_days,
         p.is_event AND p.piece_to = p.purchase_day + p.gap_days + 1 AS is_event,
         c.month_no,
+        c.window_no,
+        p.coupons_received >= getvariable('timing_min_coupons') AS is_exposed,
         c.is_broadcast_running OR p.coupons_held > 0 AS is_promotion,
         p.last_redemption_day IS NOT NULL
             AND p.piece_from - p.last_redemption_day <= getvariable('timing_dip_days') AS is_dip,
@@ -132,9 +139,11 @@ SELECT
     CAST(stop_days AS INTEGER) AS stop_days,
     is_event,
     month_no,
+    window_no,
     CAST(is_promotion AS INTEGER) AS promotion_available,
     CAST(is_dip AND NOT is_promotion AS INTEGER) AS in_dip,
     CAST(is_dip AND is_promotion AS INTEGER) AS in_dip_during_promotion,
     CAST(is_anticipating AS INTEGER) AS in_anticipation,
-    CAST(coupons_received AS INTEGER) AS coupons_received
+    CAST(coupons_received AS INTEGER) AS coupons_received,
+    CAST(is_exposed AS INTEGER) AS is_exposed
 FROM flagged

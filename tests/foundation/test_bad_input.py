@@ -22,7 +22,7 @@ def test_missing_file(tmp_path, capsys):
     cfg = write_export(tmp_path / "e")
     (cfg.parent / "promotions.csv").unlink()
     code, out = run(["build", "-c", str(cfg)], capsys)
-    assert code == 3
+    assert code == 2  # a path that matches no file is a config mistake
     assert "tables.promotions.path = 'promotions.csv' matches no file" in out
     assert no_workspace(cfg) and not (cfg.parent / ".liftlag" / "checked.duckdb").exists()
 
@@ -78,7 +78,7 @@ def test_config_that_points_at_nothing(tmp_path, capsys):
     cfg = write_export(tmp_path / "e")
     cfg.write_text(cfg.read_text().replace('path = "transactions.csv"', 'path = "nowhere/*.parquet"'))
     code, out = run(["check", "-c", str(cfg)], capsys)
-    assert code == 3 and "matches no file" in out
+    assert code == 2 and "matches no file" in out
 
 
 def test_promotion_that_ends_before_it_starts(tmp_path, capsys):

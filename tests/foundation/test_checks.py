@@ -6,6 +6,8 @@ clean tiny export (tests/conftest.py), which trips no rule, and adds one row.
 
 from __future__ import annotations
 
+import datetime as dt
+
 import duckdb
 import pytest
 
@@ -35,6 +37,8 @@ def test_clean_tiny_export_trips_no_rule(tmp_path):
 
 
 OK_LINE = ["o10", "c2", "2026-03-06 10:00:00", "p1", "1", "10", "10", "0", ""]
+# Later than the check's time but within checks.future_days (1 day): a warning, not a rejection.
+SOON = (dt.datetime.now(dt.timezone.utc) + dt.timedelta(hours=6)).strftime("%Y-%m-%d %H:%M:%S")
 
 REJECT_CASES = {
     # rule: (table, tripping rows, passing rows)
@@ -52,6 +56,8 @@ REJECT_CASES = {
     "ends_before_starts": ("promotions",
                            [["PC", "2026-05-10", "2026-05-01", "percent_off", "0.1", "targeted", "late"]],
                            [["PC", "2026-05-01", "2026-05-01", "percent_off", "0.1", "targeted", "one day"]]),
+    "timestamp_beyond_horizon": ("transactions",
+                                 [["o10", "c2", "2999-01-01 10:00:00", "p1", "1", "10", "10", "0", ""]], [OK_LINE]),
     "duplicate_key": ("promotions",
                       [["PA", "2026-04-01", "2026-04-08", "percent_off", "0.3", "targeted", "again"]],
                       [["PD", "2026-04-01", "2026-04-08", "percent_off", "0.3", "targeted", "new"]]),
@@ -83,7 +89,13 @@ WARN_CASES = {
                                       [["o10", "c1", "2026-03-12 10:00:00", "p1", "1", "8", "10", "2", "PA"]],
                                       [["o10", "c1", "2026-03-08 23:00:00", "p1", "1", "8", "10", "2", "PA"]]),
     "future_timestamp": ("transactions",
-                         [["o10", "c1", "2999-01-01 10:00:00", "p1", "1", "10", "10", "0", ""]], [OK_LINE]),
+                         [["o10", "c1", SOON, "p1", "1", "10", "10", "0", ""]], [OK_LINE]),
+    "unparseable_optional": ("promotions",
+                             [["PC", "2026-05-01", "2026-05-02", "percent_off", "15%", "targeted", "x"]],
+                             [["PC", "2026-05-01", "2026-05-02", "percent_off", "0.15", "targeted", "x"]]),
+    "return_sign_mismatch": ("transactions",
+                             [["o10", "c1", "2026-03-06 10:00:00", "p1", "-1", "10", "10", "0", ""]],
+                             [["o10", "c1", "2026-03-06 10:00:00", "p1", "-1", "-10", "-10", "0", ""]]),
     "net_above_list": ("transactions",
                        [["o10", "c1", "2026-03-06 10:00:00", "p1", "1", "12", "10", "0", ""]],
                        # a returned line: -8 paid back on -10 list is not "above list"

@@ -46,3 +46,18 @@ def test_names_are_normalised_and_coded_values_read_only_when_every_value_reads(
     assert value_map("audience", {"Targeted", "Broadcast"}) == {"targeted": "Targeted", "broadcast": "Broadcast"}
     assert value_map("arm", {"T", "C", "X"}) is None  # one value that does not read spoils the map
     assert value_map("arm", {"T", "test"}) is None  # two values for one arm
+
+
+def test_a_promotions_file_with_a_repeated_row_is_still_the_promotions_table(tmp_path, capsys):
+    """The key named promotion_id repeats (an exact copy of a row): init still takes it, marked, and
+    `liftlag check` rejects the copy (common practice, no source)."""
+    from tests.conftest import TINY_PROMOTIONS
+
+    cfg = write_export(tmp_path / "export", promotions=TINY_PROMOTIONS + [TINY_PROMOTIONS[0]])
+    cfg.unlink()
+    assert cli.main(["init", str(cfg.parent)]) == 0
+    assert "promotion_id <- promotion_id (sure: name 'promotion_id' is a usual name for it; some values repeat" \
+        in capsys.readouterr().out
+    assert "promotions" in tomllib.loads(cfg.read_text())["tables"]
+    assert cli.main(["check", "-c", str(cfg)]) == 0
+    assert "duplicate_row" in capsys.readouterr().out

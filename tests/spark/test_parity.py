@@ -8,6 +8,7 @@ engine runs in local mode on the test session's shared SparkSession.
 from __future__ import annotations
 
 import dataclasses
+import datetime as dt
 import gzip
 import shutil
 from pathlib import Path
@@ -125,6 +126,9 @@ def test_demo_panels_are_the_same_on_duckdb_and_spark(demo_both):
     assert_same_tables(duck, spark)
 
 
+# Later than the check's time, within the horizon ([checks] future_days = 1): a future_timestamp.
+SOON = (dt.datetime.now(dt.timezone.utc) + dt.timedelta(hours=6)).strftime("%Y-%m-%d %H:%M:%S")
+
 # One row per rule (the cases of tests/foundation/test_checks.py), all in one export.
 MESSY_TRANSACTIONS = TINY_TRANSACTIONS + [
     ["o10", "  ", "2026-03-06 10:00:00", "p1", "1", "10", "10", "0", ""],          # missing_required
@@ -135,7 +139,9 @@ MESSY_TRANSACTIONS = TINY_TRANSACTIONS + [
     ["o14", "", "bad date", "p1", "x", "10", "10", "0", "PZ"],                     # several at once
     ["o15", "c1", "2026-03-04 10:00:00", "p1", "1", "5", "10", "5", "PA"],         # discount_deeper_than_depth
     ["o16", "c1", "2026-03-12 10:00:00", "p1", "1", "8", "10", "2", "PA"],         # order_outside_promotion_dates
-    ["o17", "c1", "2999-01-01 10:00:00", "p1", "1", "10", "10", "0", ""],          # future_timestamp
+    ["o17", "c1", SOON, "p1", "1", "10", "10", "0", ""],                           # future_timestamp
+    ["o20", "c1", "2999-01-01 10:00:00", "p1", "1", "10", "10", "0", ""],          # timestamp_beyond_horizon
+    ["o21", "c2", "2026-03-06 10:00:00", "p1", "-1", "5", "10", "0", ""],          # return_sign_mismatch
     ["o18", "c1", "2026-03-06 10:00:00", "p1", "1", "12", "10", "0", ""],          # net_above_list
     ["o19", "c3", "2026-03-07 10:00:00", "p2", "1", "nan", "10", "0", ""],         # NaN is no amount
 ]
@@ -150,7 +156,7 @@ MESSY_ASSIGNMENTS = TINY_ASSIGNMENTS + [
     ["PA", "c5", "T", "2026-03-01T12:00:00+02:00"],                                # offset: UTC 10:00
 ]
 MESSY_CUSTOMERS = TINY_CUSTOMERS + [["c3", "2025-11-01", "south"], ["c1", "2025-10-01", "west"]]  # duplicate_key
-MESSY_PRODUCTS = TINY_PRODUCTS + [["p1", "tools", "5"]]                                         # duplicate_key
+MESSY_PRODUCTS = TINY_PRODUCTS + [["p1", "tools", "5"], ["p3", "tools", "abc"]]  # duplicate_key, unparseable_optional
 
 
 def _messy(folder: Path, promotions) -> Path:

@@ -25,10 +25,12 @@ def con(spark_session):
         sources._empty_staged(con, table)
     for statement in sources.staged_union_sql():
         con.execute(statement)
-    con.execute("SET VARIABLE allowed_arm = ?", [list(contract.ARMS)])
-    con.execute("SET VARIABLE allowed_mechanic = ?", [list(contract.MECHANICS)])
-    con.execute("SET VARIABLE allowed_audience = ?", [list(contract.AUDIENCES)])
-    con.execute("SET VARIABLE checked_at = ?", [pd.Timestamp("2026-12-01").to_pydatetime()])
+    for column, allowed in (("arm", contract.ARMS), ("mechanic", contract.MECHANICS), ("audience", contract.AUDIENCES)):
+        con.execute(f"SET VARIABLE allowed_{column} = ?", [list(allowed)])
+        con.execute(f"SET VARIABLE allowed_{column}_text = ?", [", ".join(allowed)])
+    now = pd.Timestamp("2026-12-01").to_pydatetime()
+    for name in ("checked_at", "horizon_earliest", "horizon_latest", "horizon_promotion_latest"):
+        con.execute(f"SET VARIABLE {name} = ?", [now])
     con.execute("CREATE OR REPLACE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions")
     yield con
     con.close()

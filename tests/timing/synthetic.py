@@ -46,13 +46,27 @@ def purchase_gaps(orders: pd.DataFrame, export_end: date) -> pd.DataFrame:
     return _typed("purchase_gaps", data)
 
 
-def campaign_windows(assignments: pd.DataFrame, promotions: pd.DataFrame) -> pd.DataFrame:
-    """campaign_windows from assignments (promotion_id, customer_id, arm, assigned_at)."""
+def campaign_windows(assignments: pd.DataFrame, promotions: pd.DataFrame, orders: pd.DataFrame | None = None,
+                     after_days: int = 28) -> pd.DataFrame:
+    """campaign_windows from assignments (promotion_id, customer_id, arm, assigned_at), with the
+    orders in the campaign window and in the ``after_days`` after it when ``orders`` are given."""
     data = assignments.merge(promotions[["promotion_id", "starts_at", "ends_at"]], on="promotion_id")
     data["is_treated"] = data["arm"] == "treatment"
     data["starts_on"] = pd.to_datetime(data["starts_at"]).dt.normalize()
     data["ends_on"] = pd.to_datetime(data["ends_at"]).dt.normalize()
+    data["after_ends_on"] = data["ends_on"] + pd.Timedelta(days=after_days)
     data["assigned_at"] = pd.to_datetime(data["assigned_at"])
+    if orders is not None:
+        placed = data[["promotion_id", "customer_id", "starts_on", "ends_on", "after_ends_on"]].merge(
+            orders.assign(ordered_on=pd.to_datetime(orders["ordered_on"]))[["customer_id", "ordered_on"]],
+            on="customer_id")
+        during = placed["ordered_on"].between(placed["starts_on"], placed["ends_on"])
+        after = (placed["ordered_on"] > placed["ends_on"]) & (placed["ordered_on"] <= placed["after_ends_on"])
+        keys = ["promotion_id", "customer_id"]
+        counts = placed.assign(during_orders=during.astype(int), after_orders=after.astype(int)).groupby(keys)[
+            ["during_orders", "after_orders"]].sum().reset_index()
+        data = data.merge(counts, on=keys, how="left")
+        data[["during_orders", "after_orders"]] = data[["during_orders", "after_orders"]].fillna(0).astype(int)
     return _typed("campaign_windows", data)
 
 
@@ -61,7 +75,7 @@ def workspace(orders: pd.DataFrame, promotions: pd.DataFrame, assignments: pd.Da
     con = duckdb.connect()
     con.execute("ATTACH ':memory:' AS checked")
     gaps = purchase_gaps(orders, export_end)
-    windows = campaign_windows(assignments, promotions)
+    windows = campaign_windows(assignments, promotions, orders)
     promos = promotions.copy()
     promos["starts_at"] = pd.to_datetime(promos["starts_at"])
     promos["ends_at"] = pd.to_datetime(promos["ends_at"])
@@ -96,6 +110,7 @@ def simulate_daily(
     broadcast: tuple[int, int] | None = (208, 214),
     starts_on: date = date(2025, 1, 6),
     campaign_starts: list[int] | None = None,
+    audience_share: float = 1.0,
 ):
     """Daily purchases from a known hazard; returns (orders, promotions, assignments, export_end).
 
@@ -105,7 +120,9 @@ def simulate_daily(
     an order happens with probability ``1 - exp(-hazard)``. Campaigns start every
     ``cadence_days`` days from day 21 and run ``campaign_days`` days; every customer is assigned,
     ``treated_share`` of them to the treatment arm (coupon usable from the campaign's first day).
-    ``campaign_starts`` (days) replaces the regular schedule.
+    ``campaign_starts`` (days) replaces the regular schedule. With ``audience_share`` below 1 each
+    campaign assigns only that random share of the customers (the others get no assignment), so
+    some customers stay unexposed to coupons for longer.
     """
     rng = np.random.default_rng(seed)
     rate = (np.full(customers, base_rate) if rate_shape is None
@@ -118,6 +135,9 @@ def simulate_daily(
     for s in starts:
         anticipation_day[max(s - anticipation_days, 0):s] = True
     treated = rng.random((len(starts), customers)) < treated_share
+    assigned = (rng.random((len(starts), customers)) < audience_share if audience_share < 1
+                else np.ones((len(starts), customers), bool))
+    treated &= assigned
     holding = np.zeros((customers, days), bool)
     coupons = np.zeros((customers, days), int)
     for k, s in enumerate(starts):
@@ -167,8 +187,8 @@ def simulate_daily(
     assignment_rows = []
     for k, (pid, s) in enumerate(zip(promotion_ids, starts)):
         assignment_rows.append(pd.DataFrame({
-            "promotion_id": pid, "customer_id": ids,
-            "arm": np.where(treated[k], "treatment", "holdout"),
+            "promotion_id": pid, "customer_id": ids[assigned[k]],
+            "arm": np.where(treated[k][assigned[k]], "treatment", "holdout"),
             "assigned_at": pd.Timestamp(first + timedelta(days=s - 2)),
         }))
     assignments = pd.concat(assignment_rows, ignore_index=True)

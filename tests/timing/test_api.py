@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from toolkit.config import ReportSettings, Settings, TimingSettings
+from toolkit.config import ReportSettings, Settings, TimingSettings, WindowSettings
 from toolkit.timing.api import EFFECT_COLUMNS, analyse_timing, write_timing
 
 from .synthetic import simulate_daily, workspace
@@ -18,13 +18,17 @@ TRUTH = {"acceleration": 1.8, "post_promotion_dip": 0.5, "anticipation": 0.6}
 
 
 def settings(**timing) -> Settings:
-    return Settings(config_path=Path("/nonexistent/liftlag.toml"), tables={},
+    # Campaigns every 35 days run 7: an after-window of 21 days leaves the 7 days before the next
+    # start clear of it (with the default 28 no anticipation window would be left).
+    return Settings(config_path=Path("/nonexistent/liftlag.toml"), tables={}, windows=WindowSettings(after_days=21),
                     timing=TimingSettings(**({"bootstrap_rounds": 20} | timing)), report=ReportSettings(small_cell=10))
 
 
 @pytest.fixture(scope="module")
 def readout():
-    orders, promotions, assignments, export_end = simulate_daily(customers=900, days=400, seed=3)
+    # Half of the customers assigned to each campaign, so that some stay unexposed (fewer than two
+    # coupons) long enough for the anticipation contrast.
+    orders, promotions, assignments, export_end = simulate_daily(customers=900, days=400, seed=3, audience_share=0.5)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         return analyse_timing(workspace(orders, promotions, assignments, export_end), settings())
@@ -33,6 +37,23 @@ def readout():
 def effect(readout, name, model):
     table = readout.tables["timing_effects"]
     return table[(table["effect"] == name) & (table["scope"] == "all") & (table["model"] == model)].iloc[0]
+
+
+def test_randomised_rows_come_first_and_recover_the_arms_contrast(readout):
+    """The simulation gives every customer a coupon with probability 0.8 (else holdout) and a hazard
+    ratio of 1.8 while it is usable: the randomised during-window ratio is above 1; after the
+    campaign, treated customers who bought with the coupon sit in a 0.5 dip, so the after-window
+    ratio is below 1. Both are by assignment (intention to treat), hence diluted."""
+    table = readout.tables["timing_effects"]
+    for name, side in (("acceleration", "higher"), ("post_promotion_dip", "lower")):
+        rows = table[table["effect"] == name]
+        first = rows.iloc[0]
+        assert (first["model"], first["scope"], first["basis"], bool(first["is_primary"])) == (
+            "randomised_rate_ratio", "all", "randomised", True)
+        assert first["verdict"] == side, first.to_dict()
+        assert "intention to treat" in first["note"]
+        observational = rows[rows["model"] != "randomised_rate_ratio"]
+        assert (observational["basis"] == "observational").all() and not observational["is_primary"].any()
 
 
 @pytest.mark.parametrize("model", ["discrete_cloglog", "cox_time_varying"])
@@ -63,7 +84,10 @@ def test_tables_have_the_contract_columns(readout):
     assert {"at_risk_days", "events", "hazard_per_day", "is_suppressed"} <= set(tables["hazard_cells"].columns)
     effects = tables["timing_effects"]
     assert set(effects["effect"]) == {"acceleration", "post_promotion_dip", "anticipation", "gap_after_deal"}
-    assert (effects.loc[effects["effect"] != "gap_after_deal", "scope"] == "all").all()
+    promotion_ids = set(readout.tables["campaign_schedule"]["scope"]) | {"all"}
+    assert set(effects.loc[effects["effect"] != "gap_after_deal", "scope"]) <= promotion_ids | {
+        f"T{k:02d}" for k in range(1, 20)}
+    assert set(effects["basis"]) == {"randomised", "observational", "descriptive"}
     assert effects["ci_level"].eq(0.95).all()
     assert not any("C0" in str(v) for v in effects["note"])  # no customer identifiers in the notes
 
@@ -84,8 +108,10 @@ def test_small_cells_are_suppressed(readout):
     assert (cells.loc[~cells["is_suppressed"], "events"] >= 10).all()
 
 
-def test_anticipation_is_not_estimable_without_a_regular_cadence():
-    """Irregular campaign starts: anticipation gets a row with no estimate and a note, never 0 or 1."""
+def test_anticipation_is_not_estimable_when_too_few_starts_have_exposed_and_unexposed_customers():
+    """Irregular starts, two of them too close to the one before to leave a window clear of its
+    after-window, and late starts where almost everyone is exposed: anticipation gets a row with no
+    estimate and the reason, never a number near 1."""
     orders, promotions, assignments, export_end = simulate_daily(
         customers=500, days=300, seed=4, anticipation_hr=1.0, campaign_starts=[21, 30, 95, 101, 170, 250])
     with warnings.catch_warnings():
@@ -93,9 +119,12 @@ def test_anticipation_is_not_estimable_without_a_regular_cadence():
         result = analyse_timing(workspace(orders, promotions, assignments, export_end), settings(bootstrap_rounds=5),
                                 fit_cox=False)
     row = effect(result, "anticipation", "discrete_cloglog")
-    assert pd.isna(row["estimate"]) and pd.isna(row["ci_low"])
-    assert row["note"].startswith("not estimable: no regular campaign cadence")
+    assert pd.isna(row["estimate"]) and pd.isna(row["ci_low"]) and row["verdict"] == "not estimable"
+    assert row["note"].startswith("not estimable: ") and "timing.anticipation_min_starts = 3 are needed" in row["note"]
     assert not result.cadence.is_regular_
+    schedule = result.tables["campaign_schedule"]
+    assert schedule["window_note"].str.contains("no window: the 7 days before the start lie in T01").any()
+    assert schedule["window_note"].str.contains("unexposed customers at risk; each needs at least 100").any()
     assert pd.notna(effect(result, "post_promotion_dip", "discrete_cloglog")["estimate"])
 
 

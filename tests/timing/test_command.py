@@ -24,6 +24,7 @@ def test_timing_command_writes_the_tables(tmp_path, capsys, demo_config):
     names = {p.stem for p in tmp_path.glob("*.parquet")}
     assert {"timing_effects", "km_curves", "hazard_cells", "ph_check"} <= names
     effects = pd.read_parquet(tmp_path / "timing_effects.parquet")
-    assert set(effects["model"]) == {"discrete_cloglog", "kaplan_meier_rmst"}
+    assert set(effects["model"]) == {"randomised_rate_ratio", "discrete_cloglog", "kaplan_meier_rmst"}
     out = capsys.readouterr().out
     assert "purchase timing" in out and "acceleration" in out
+    assert "randomised" in out and "descriptive" in out

@@ -11,6 +11,7 @@ from datetime import date, timedelta
 import pandas as pd
 import pytest
 
+from toolkit.timing.schedule import anticipation_windows
 from toolkit.timing.spells import ORDER, SQL_DIR, SpellOptions, TimingTables, periods_table
 
 from .synthetic import workspace
@@ -40,7 +41,8 @@ def hand_tables():
     assignments = pd.DataFrame({"promotion_id": ["T01"], "customer_id": ["A"], "arm": ["treatment"],
                                 "assigned_at": [pd.Timestamp(day(3))]})
     con = workspace(orders, promotions, assignments, day(50))
-    tables = TimingTables(con, SpellOptions(dip_days=21, anticipation_days=3, min_coupons=1, n_blocks=4), [day(45)])
+    windows = anticipation_windows([day(45)], 3)  # nothing to cut it: days 42-44
+    tables = TimingTables(con, SpellOptions(dip_days=21, anticipation_days=3, min_coupons=1, n_blocks=4), windows)
     yield tables
     tables.close()
 

@@ -100,6 +100,18 @@ def seasonality(scenario: Scenario, dates: np.ndarray) -> np.ndarray:
     return season_of(day_of_year.astype(float)) / year_mean * week[weekday]
 
 
+def _campaign_starts(scenario: Scenario):
+    """Campaign start dates: ``first_campaign_on`` plus each offset, or every ``cadence_days``."""
+    if scenario.campaign_start_offsets:
+        for offset in scenario.campaign_start_offsets:
+            yield scenario.first_campaign_on + timedelta(days=int(offset))
+        return
+    start = scenario.first_campaign_on
+    while True:
+        yield start
+        start = start + timedelta(days=scenario.cadence_days)
+
+
 def build_calendar(scenario: Scenario, rng: np.random.Generator) -> Calendar:
     """Lay out the days and the promotion schedule (campaign depths are drawn from ``rng``)."""
     days = (scenario.ends_on - scenario.starts_on).days + 1
@@ -107,9 +119,10 @@ def build_calendar(scenario: Scenario, rng: np.random.Generator) -> Calendar:
     season = seasonality(scenario, dates)
 
     campaigns: list[Promotion] = []
-    start = scenario.first_campaign_on
     last_day = scenario.ends_on
-    while start + timedelta(days=scenario.campaign_days + scenario.after_days - 1) <= last_day:
+    for start in _campaign_starts(scenario):
+        if start + timedelta(days=scenario.campaign_days + scenario.after_days - 1) > last_day:
+            break
         end = start + timedelta(days=scenario.campaign_days - 1)
         depth = float(rng.choice(np.asarray(scenario.depths)))
         number = len(campaigns) + 1
@@ -126,7 +139,6 @@ def build_calendar(scenario: Scenario, rng: np.random.Generator) -> Calendar:
                 name=f"{_THEMES[start.month]} {round(depth * 100)}% off",
             )
         )
-        start = start + timedelta(days=scenario.cadence_days)
 
     b_start = scenario.broadcast_starts_on
     b_end = b_start + timedelta(days=scenario.broadcast_days - 1)
@@ -151,6 +163,12 @@ def build_calendar(scenario: Scenario, rng: np.random.Generator) -> Calendar:
                 raise ValueError(f"broadcast {promo.promotion_id} overlaps campaign {campaign.promotion_id}")
         broadcast_factor[promo.start_day : promo.end_day + 1] = scenario.broadcast_hr
         broadcast_index[promo.start_day : promo.end_day + 1] = index
+
+    if scenario.pre_start_season_hr != 1.0:
+        season = season.copy()
+        for campaign in campaigns:
+            low = max(campaign.start_day - scenario.pre_start_season_days, 0)
+            season[low : campaign.start_day] *= scenario.pre_start_season_hr
 
     anticipation_day = np.zeros(days, dtype=bool)
     for campaign in campaigns:

@@ -25,6 +25,33 @@ one's behaviour (an A/A data set on which every effect must come out null).
 """
 
 
+CALENDARS = ("regular", "irregular", "seasonal")
+"""Calendar variants (:meth:`Scenario.for_variant`), each combinable with any of ``EFFECTS``.
+
+``regular``: the default demo (a campaign every ``cadence_days`` from a Monday). ``irregular``:
+campaigns from a Wednesday, 43 to 57 days apart (no fixed cadence), one period skipped (a 112-day
+gap) and one extra campaign squeezed in 43 days after another. ``seasonal``: the regular calendar
+with stronger yearly and weekly seasonality and a dip in everyone's purchases in the 7 days
+before each campaign start (a calendar effect shared by all customers, which an anticipation
+estimate must not mistake for customers waiting for the coupon).
+"""
+
+_CALENDAR_OVERRIDES: dict[str, dict[str, Any]] = {
+    "regular": {},
+    "irregular": {
+        "first_campaign_on": date(2025, 2, 5),
+        "campaign_start_offsets": (0, 52, 97, 151, 263, 306, 357, 410, 458, 515),
+    },
+    "seasonal": {
+        "spring_peak_height": 1.2,
+        "december_peak_height": 0.8,
+        "december_peak_width": 14.0,
+        "weekday_factors": (1.2, 1.0, 0.9, 0.85, 0.85, 1.05, 1.4),
+        "pre_start_season_hr": 0.75,
+    },
+}
+
+
 @dataclass(frozen=True)
 class Scenario:
     """Parameters of the demo retailer and of its purchase process.
@@ -104,6 +131,13 @@ class Scenario:
     pre_period_days, after_days : int
         Pre-period used for the recency/frequency features; days after a campaign window over
         which the truth measures pull-forward.
+    campaign_start_offsets : tuple of int, default=()
+        Days from ``first_campaign_on`` to each campaign's start, for a calendar off any fixed
+        cadence; empty: a campaign every ``cadence_days``.
+    pre_start_season_hr : float, default=1.0
+        Factor on every customer's hazard (coupon or not) in the ``pre_start_season_days`` days
+        before each campaign start: a calendar effect shared by everyone, not anticipation.
+    pre_start_season_days : int, default=7
     """
 
     starts_on: date = date(2025, 1, 1)
@@ -159,6 +193,9 @@ class Scenario:
     pre_period_days: int = 365
     after_days: int = 28
     margin_rate: float = 0.38
+    campaign_start_offsets: tuple[int, ...] = ()
+    pre_start_season_hr: float = 1.0
+    pre_start_season_days: int = 7
 
     @classmethod
     def for_effects(cls, effects: str = "all", **overrides: Any) -> "Scenario":
@@ -198,6 +235,19 @@ class Scenario:
         scenario.validate()
         return scenario
 
+    @classmethod
+    def for_variant(cls, effects: str = "all", calendar: str = "regular", **overrides: Any) -> "Scenario":
+        """The scenario of an effects variant on a calendar variant (see ``EFFECTS`` and ``CALENDARS``).
+
+        Examples
+        --------
+        >>> Scenario.for_variant("uplift_only", "irregular").campaign_start_offsets[:3]
+        (0, 52, 97)
+        """
+        if calendar not in CALENDARS:
+            raise ConfigError(f"demo calendar must be one of {', '.join(CALENDARS)}, found {calendar!r}")
+        return cls.for_effects(effects, **{**_CALENDAR_OVERRIDES[calendar], **overrides})
+
     def validate(self) -> None:
         """Raise ConfigError naming the first parameter that cannot be simulated."""
         if self.ends_on <= self.starts_on:
@@ -220,6 +270,14 @@ class Scenario:
                 f"demo scenario: cadence_days ({self.cadence_days}) must leave room for campaign_days "
                 f"({self.campaign_days}) + after_days ({self.after_days}) so windows do not overlap"
             )
+        offsets = self.campaign_start_offsets
+        if offsets and (offsets[0] < 0 or any(b - a < self.campaign_days for a, b in zip(offsets, offsets[1:]))):
+            raise ConfigError(
+                f"demo scenario: campaign_start_offsets {offsets!r} must start at 0 or later and be at least "
+                f"campaign_days ({self.campaign_days}) apart, in increasing order"
+            )
+        if not self.pre_start_season_hr > 0 or self.pre_start_season_days < 0:
+            raise ConfigError("demo scenario: pre_start_season_hr must be positive and pre_start_season_days 0 or more")
         if len(self.regions) != len(self.region_weights) or len(self.signup_channels) != len(self.signup_weights):
             raise ConfigError("demo scenario: regions/signup_channels and their weights must have equal lengths")
         if len(self.weekday_factors) != 7:

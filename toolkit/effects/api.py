@@ -30,9 +30,11 @@ from typing import Iterable
 
 import numpy as np
 import pandas as pd
+from rich.markup import escape
 
 from ..contract import PANELS
 from ..errors import AnalysisError, ConfigError, DataError, StatisticalWarning
+from ..failures import interrupt_requested
 from .balance import CHECK_COLUMNS, RandomisationCheck
 from .economics import ECONOMICS_COLUMNS, campaign_economics
 from .features import PANEL_FEATURES, campaign_features
@@ -112,11 +114,33 @@ def _promotion(con, promotion_id: str) -> dict:
     row = rows.iloc[0].to_dict()
     if row.get("audience") == "broadcast":
         raise ConfigError(
-            f"promotion {promotion_id!r} is a broadcast promotion (audience = broadcast): it has no assigned arms to "
-            f"compare; its effect is estimated against a counterfactual in the quarterly report: "
-            f"`liftlag quarter QUARTER -c liftlag.toml`"
+            f"promotion {promotion_id!r} is a broadcast promotion (audience = broadcast): a broadcast sale has no "
+            f"holdout, so there is no campaign readout to compute; {_broadcast_pointer()}"
         )
     return row
+
+
+def _broadcast_pointer() -> str:
+    """Where a broadcast sale is analysed, worded from the commands this version really has."""
+    from ..cli import build_parser
+
+    commands = set()
+    for action in build_parser()._actions:
+        commands |= set(getattr(action, "choices", None) or ())
+    if "longrun" in commands:
+        return "its effect against a counterfactual is in `liftlag longrun -c liftlag.toml` (broadcast_effects)"
+    return ("the analysis of broadcast sales against a counterfactual (`liftlag longrun`) is not in this version "
+            "yet; `liftlag --help` lists the commands it has")
+
+
+def _both_arms(con, promotion_id: str) -> int:
+    """Customers assigned to both arms of the promotion (the panels keep the earliest assignment)."""
+    try:
+        return int(con.execute(
+            "SELECT count(*) FROM (SELECT customer_id FROM checked.assignments WHERE promotion_id = ? "
+            "GROUP BY customer_id HAVING count(DISTINCT arm) > 1)", [promotion_id]).fetchall()[0][0])
+    except Exception:  # a hand-made connection without the checked inputs
+        return 0
 
 
 def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFrame | None = None,
@@ -194,6 +218,16 @@ def analyse_campaign(con, settings, promotion_id: str, *, comparison: pd.DataFra
     readout.meta["seconds"] = {"read": read_seconds, **readout.meta["seconds"],
                                "total": time.perf_counter() - started}
     readout.meta["input_fingerprint"] = _build_fingerprint(settings)
+    both = _both_arms(con, str(promotion_id))
+    if both:
+        who = "1 customer was" if both == 1 else f"{both:,} customers were"
+        message = (f"{who} assigned to both the treatment and the holdout of this promotion; "
+                   f"each is counted in the arm of their earliest assignment (check the assignment export)")
+        readout.notes.append(("warning", message))
+        notes_table = readout.tables.get("campaign_notes")
+        if notes_table is not None:
+            row = pd.DataFrame({"promotion_id": [readout.promotion_id], "level": ["warning"], "message": [message]})
+            readout.tables["campaign_notes"] = pd.concat([notes_table, row], ignore_index=True)
     return readout
 
 
@@ -643,6 +677,8 @@ def run_campaigns(settings, out_dir: str | Path, console=None, *, promotion_ids:
         ids = list(promotion_ids) if promotion_ids is not None else list_targeted_promotions(con)["promotion_id"]
         readouts, skipped, seconds = [], {}, {}
         for pid in ids:
+            if interrupt_requested():  # Ctrl-C swallowed by a library: stop, write nothing half-done
+                raise KeyboardInterrupt
             started = time.perf_counter()
             try:
                 with warnings.catch_warnings():
@@ -651,13 +687,13 @@ def run_campaigns(settings, out_dir: str | Path, console=None, *, promotion_ids:
             except AnalysisError as exc:
                 skipped[str(pid)] = str(exc)
                 if console is not None:
-                    console.print(f"  campaign {pid}: [yellow]skipped[/]: {exc}")
+                    console.print(f"  campaign {escape(str(pid))}: [yellow]skipped[/]: {escape(str(exc))}")
                 continue
             seconds[str(pid)] = round(time.perf_counter() - started, 2)
             if console is not None:
                 r = readouts[-1]
                 flag = "" if r.randomisation_check in ("passed", "not run") else f" [red]({r.randomisation_check})[/]"
-                console.print(f"  campaign {pid}: {seconds[str(pid)]:.1f} s{flag}")
+                console.print(f"  campaign {escape(str(pid))}: {seconds[str(pid)]:.1f} s{flag}")
     finally:
         con.close()
     written = write_campaigns(readouts, out_dir) if readouts else []

@@ -25,22 +25,26 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_campaign, run_campaigns, write_campaign
 
     if bool(args.promotion_id) == bool(args.all):
         raise ConfigError("give one PROMOTION_ID or --all (not both, not neither); "
                           "`liftlag campaign --all -c liftlag.toml` reads out every targeted campaign")
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
-    out = Path(args.out)
+    out = check_out_dir(args.out)
     if args.all:
         started = time.perf_counter()
         facts = run_campaigns(settings, out, console=console)
         for pid, reason in facts["skipped"].items():
-            err_console.print(f"[yellow]skipped {pid}:[/] {reason}")
+            err_console.print(f"[yellow]skipped {escape(str(pid))}:[/] {escape(str(reason))}")
         if not facts["campaigns"]:
             raise AnalysisError(_nothing_to_read_out(settings, facts))
-        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{out}[/]")
+        console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{escape(str(out))}[/]")
         return 0
     con = workspace.connect(settings)
     try:
@@ -51,9 +55,9 @@ def run_command(args) -> int:
     _print_summary(console, readout)
     for level, message in readout.notes:
         if level == "warning":
-            err_console.print(f"[yellow]note:[/] {message}")
+            err_console.print(f"[yellow]note:[/] {escape(str(message))}")
     html = [p for p in paths if p.suffix == ".html"]
-    console.print(f"readout: [bold]{html[0] if html else out}[/] (tables beside it)")
+    console.print(f"readout: [bold]{escape(str(html[0] if html else out))}[/] (tables beside it)")
     return 0
 
 
@@ -70,11 +74,12 @@ def _nothing_to_read_out(settings, facts: dict) -> str:
 
 
 def _print_summary(console, readout) -> None:
+    from rich.markup import escape
     from rich.table import Table
 
     status = readout.randomisation_check
     colour = {"passed": "green", "not run": "yellow"}.get(status, "bold red")
-    table = Table(title=f"campaign {readout.promotion_id}: randomisation check [{colour}]{status}[/]")
+    table = Table(title=f"campaign {escape(str(readout.promotion_id))}: randomisation check [{colour}]{escape(status)}[/]")
     for col in ("outcome", "window", "lift", "interval", "relative lift"):
         table.add_column(col, justify="left" if col in ("outcome", "window") else "right")
     summary = readout.summary

@@ -17,6 +17,7 @@ from pathlib import Path
 import duckdb
 
 from ..errors import ConfigError, DataError, DataWarning
+from ..failures import duckdb_cause
 
 SUFFIXES = (".parquet", ".pq", ".csv.gz", ".tsv.gz", ".csv", ".tsv")
 # At most this many files of a group are described one by one; the others are assumed alike
@@ -53,7 +54,7 @@ def describe(con, path: str, kind: str) -> list[tuple[str, str]]:
     try:
         rows = con.execute(f"DESCRIBE SELECT * FROM {reader}", [path]).fetchall()
     except duckdb.Error as exc:
-        raise DataError(f"cannot read {path}: {str(exc).strip().splitlines()[0]}") from None
+        raise DataError(f"cannot read {path}: {duckdb_cause(exc)}") from None
     return [(r[0], r[1]) for r in rows]
 
 

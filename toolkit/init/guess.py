@@ -174,7 +174,7 @@ def column_evidence(table: str, contract_column: str, prof: ColumnProfile) -> li
             numbers = prof.numbers.dropna()
             if prof.integer_share >= 0.99 and len(numbers) and float(np.median(numbers.abs())) <= 20:
                 out.append(Evidence(0.3, exact, f"small whole numbers (median {np.median(numbers):g})"))
-            else:
+            elif not exact:  # amounts are numbers too; a quantity by name alone may be a weight
                 return None
     else:  # text: ids, codes, names
         if prof.is_date:
@@ -196,6 +196,9 @@ def column_evidence(table: str, contract_column: str, prof: ColumnProfile) -> li
         if KEYS.get(table) == contract_column:
             if prof.is_key:
                 out.append(Evidence(0.1, False, f"unique on every sampled row ({prof.present:,})"))
+            elif exact and table == "promotions":  # repeated rows are for `liftlag check` to reject
+                out.append(Evidence(0.0, False, "some values repeat in the sample"))
+            # Otherwise a file whose customer (or product) column repeats is not that table.
             else:
                 return None
     return out

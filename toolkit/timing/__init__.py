@@ -6,7 +6,8 @@ Public names:
   :func:`write_timing` (one Parquet file per table) (``api``)
 - estimators: :class:`TimeToNextOrder` (Kaplan-Meier, log-rank, RMST), :class:`TimeVaryingCox`
   (Cox with time-varying covariates, customer bootstrap), :class:`DiscreteTimeHazard` (cloglog on
-  aggregated cells, customer-block bootstrap), :class:`CampaignCadence` (regular campaign schedule)
+  aggregated cells, customer-block bootstrap), :class:`CampaignCadence` (expected campaign starts),
+  :class:`ArmRateRatio` (treatment vs holdout rate ratios by assignment, per campaign and pooled)
 """
 
 import importlib
@@ -15,7 +16,7 @@ import importlib
 # lifelines and statsmodels.
 _HOME = {
     "TimingReadout": "api", "analyse_timing": "api", "write_timing": "api",
-    "CampaignCadence": "schedule",
+    "CampaignCadence": "schedule", "ArmRateRatio": "randomised",
     "DiscreteTimeHazard": "discrete", "TimeToNextOrder": "kaplan_meier", "TimeVaryingCox": "cox",
 }
 
@@ -26,5 +27,5 @@ def __getattr__(name):
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
-__all__ = ["CampaignCadence", "DiscreteTimeHazard", "TimeToNextOrder", "TimeVaryingCox", "TimingReadout",
+__all__ = ["ArmRateRatio", "CampaignCadence", "DiscreteTimeHazard", "TimeToNextOrder", "TimeVaryingCox", "TimingReadout",
            "analyse_timing", "write_timing"]

@@ -27,10 +27,15 @@ def register(sub, config_arg) -> None:
 
 def run_command(args) -> int:
     from .. import config, workspace
+    from rich.markup import escape
+
     from ..console import console, err_console
     from .api import analyse_timing, options_from, write_timing
 
+    from ..results import check_out_dir
+
     settings = config.load(args.config)
+    check_out_dir(args.out)
     con = workspace.connect(settings)
     try:
         readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
@@ -40,23 +45,27 @@ def run_command(args) -> int:
     write_timing(readout, out)
     _print_summary(console, readout)
     for note in readout.notes:
-        err_console.print(f"[yellow]note:[/] {note}")
-    console.print(f"timing tables in [bold]{out}[/] ({', '.join(sorted(readout.tables))})")
+        err_console.print(f"[yellow]note:[/] {escape(str(note))}")
+    console.print(f"timing tables in [bold]{escape(str(out))}[/] ({', '.join(sorted(readout.tables))})")
     return 0
+
+
+MODEL_WORDS = {"discrete_cloglog": "discrete", "cox_time_varying": "Cox"}
 
 
 def _print_summary(console, readout) -> None:
     from rich.table import Table
 
     effects = readout.tables["timing_effects"]
-    table = Table(title="purchase timing (hazard ratios; gap after a deal in days)")
-    for column in ("effect", "model", "estimate", "interval", "customers"):
-        table.add_column(column, justify="left" if column in ("effect", "model") else "right", overflow="fold")
+    table = Table(title="purchase timing (rate and hazard ratios; gap after a deal in days); primary rows first")
+    for column in ("effect", "basis", "estimate", "interval", "verdict"):
+        table.add_column(column, justify="right" if column in ("estimate", "interval") else "left", overflow="fold")
     for row in effects[effects["scope"] == "all"].itertuples():
         if row.estimate is None or (isinstance(row.estimate, float) and math.isnan(row.estimate)):
             estimate, interval = "not estimable", ""
         else:
             estimate = f"{row.estimate:.3g}"
             interval = f"{row.ci_low:.3g} to {row.ci_high:.3g} ({row.ci_level:.0%})"
-        table.add_row(row.effect, row.model, estimate, interval, f"{row.n_customers:,}")
+        basis = row.basis if row.basis != "observational" else f"observational ({MODEL_WORDS.get(row.model, row.model)})"
+        table.add_row(row.effect, basis, estimate, interval, row.verdict)
     console.print(table)

@@ -127,6 +127,10 @@ class TimeVaryingCox(BootstrapIntervalsMixin, FittedMixin):
             A column whose levels each get their own baseline hazard (a stratified Cox model);
             a customer's spells may fall in different strata.
         """
+        if not list(covariates):
+            # Nothing to estimate (e.g. an export without promotions: no exposure ever varies).
+            raise AnalysisError(f"no covariate varies in the {table} (no promotion, coupon or dip day in this data), "
+                                f"so there is no hazard ratio to estimate")
         with single_threaded_blas():
             return self._fit(spells, id_col, start_col, stop_col, event_col, covariates, strata_col, table)
 

@@ -199,6 +199,10 @@ class DiscreteTimeHazard(BootstrapIntervalsMixin, FittedMixin):
         block_col : str, optional
             Customer block of each cell row, for the bootstrap.
         """
+        if not list(covariates):
+            # Nothing to estimate (e.g. an export without promotions: no exposure ever varies).
+            raise AnalysisError(f"no covariate varies in the {table} (no promotion, coupon or dip day in this data), "
+                                f"so there is no hazard ratio to estimate")
         with single_threaded_blas():
             return self._fit(cells, period_col, covariates, events_col, at_risk_col, block_col, factors, table)
 

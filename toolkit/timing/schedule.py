@@ -1,15 +1,21 @@
-"""Is there a regular campaign cadence customers could learn, and when is the next start due?
+"""When are campaign starts expected, and which days before them can show anticipation?
 
-Anticipation (customers holding off before the next coupon) is only meaningful when targeted
-campaigns start on a rhythm a customer can pick up. :class:`CampaignCadence` looks at the start
-days of the targeted campaigns, finds the typical spacing, and says whether the starts keep to it
-(a skipped campaign, i.e. a spacing of two or three periods, still keeps to it). From a regular
-cadence it lays out the *expected* starts: by default the cadence grid itself, which includes
-starts that were skipped and the next start after the last one seen, since a customer who has
-learnt the rhythm expects those too; ``expected_starts="observed"`` uses the starts that happened.
-The grid is not extended past the last observed start unless asked (``extend_past_last``): at the
-edge of the data nobody can tell whether the programme went on, and a window before a start that
-never came would dilute the anticipation estimate.
+Anticipation (customers holding off before the next coupon) is read in the days before the
+campaign starts customers could expect. :class:`CampaignCadence` takes the start days of the
+targeted campaigns from the promotions table and lays out the *expected* starts:
+
+* every real start (customers who learned the rhythm wait for the starts that came), and
+* where the starts keep to a regular cadence, the starts of the grid that were skipped: a spacing
+  of two or three periods between two real starts gets the missing start(s) laid out between
+  them, with the grid's phase taken from those two neighbouring real starts (so a calendar whose
+  phase shifts after an irregular gap never puts an expected start days away from the real ones).
+
+``expected_starts="observed"`` uses the real starts alone. The grid is not extended past the last
+real start unless asked (``extend_past_last``): at the edge of the data nobody can tell whether
+the programme went on, and a window before a start that never came would dilute the estimate.
+
+:func:`anticipation_windows` then cuts the ``days_before`` days before each expected start so that
+no window overlaps another promotion's running window or the window after it.
 """
 
 from __future__ import annotations
@@ -56,7 +62,9 @@ class CampaignCadence(FittedMixin):
         Distinct start days (starts within ``tolerance_days`` of each other are one wave).
     starts_ : list of datetime.date
     expected_starts_ : list of datetime.date
-        Empty when the cadence is not regular.
+        The real starts, plus the skipped starts of a regular cadence (see the module docstring).
+    skipped_starts_ : list of datetime.date
+        Expected starts where no campaign started (empty unless the cadence is regular).
     note_ : str
         Why the cadence is or is not regular, in words.
 
@@ -112,12 +120,13 @@ class CampaignCadence(FittedMixin):
         self.n_campaigns_ = len(waves)
         self.cadence_days_ = None
         self.share_on_cadence_ = None
-        self.expected_starts_ = []
+        self.skipped_starts_ = []
+        self.expected_starts_ = list(waves)
         self.is_regular_ = False
         if len(waves) < self.min_campaigns:
             self.note_ = (
                 f"{len(waves)} targeted campaign start(s); at least {self.min_campaigns} are needed "
-                "to call a cadence regular"
+                "to call a cadence regular; expected starts are the real starts"
             )
             return self
         spacing = np.diff([d.toordinal() for d in waves]).astype(float)
@@ -130,57 +139,58 @@ class CampaignCadence(FittedMixin):
         self.cadence_days_ = round(period, 2)
         self.share_on_cadence_ = round(share, 4)
         if period < self.min_cadence_days:
-            self.note_ = f"starts are {period:.1f} days apart, shorter than min_cadence_days={self.min_cadence_days}"
+            self.note_ = (f"starts are {period:.1f} days apart, shorter than min_cadence_days={self.min_cadence_days}; "
+                          "expected starts are the real starts")
             return self
         if share < self.min_regular_share:
             self.note_ = (
                 f"only {share:.0%} of the {len(spacing)} spacings between starts keep to a {period:.1f}-day "
-                f"cadence (within {self.tolerance_days} days); {self.min_regular_share:.0%} needed"
+                f"cadence (within {self.tolerance_days} days); {self.min_regular_share:.0%} needed; expected starts "
+                "are the real starts"
             )
             return self
         self.is_regular_ = True
-        if self.expected_starts == "observed":
-            self.expected_starts_ = list(waves)
-        else:
-            self.expected_starts_ = self._grid(waves, period, until if self.extend_past_last else None)
+        if self.expected_starts == "cadence":
+            self.skipped_starts_ = self._skipped(waves, spacing, periods, on)
+            extra = self._beyond(waves[-1], period, until) if self.extend_past_last and until is not None else []
+            self.expected_starts_ = sorted(set(waves) | set(self.skipped_starts_) | set(extra))
         self.note_ = (
             f"targeted campaigns start every {period:.1f} days ({share:.0%} of {len(spacing)} spacings on "
-            f"cadence within {self.tolerance_days} days)"
+            f"cadence within {self.tolerance_days} days); expected starts: the {len(waves)} real starts"
+            + (f" and {len(self.skipped_starts_)} skipped start(s) of the cadence" if self.skipped_starts_ else "")
         )
         return self
 
     @staticmethod
-    def _grid(waves: list[date], period: float, until: date | None) -> list[date]:
-        """Grid anchored by least squares on the observed starts, to the first start past the data."""
-        first = waves[0].toordinal()
-        offsets = np.array([w.toordinal() - first for w in waves], dtype=float)
-        k = np.rint(offsets / period)
-        anchor = first + float(np.mean(offsets - k * period))
-        grid = []
-        j = 0
-        if until is None:
-            last = waves[-1].toordinal() + period / 2  # up to the last observed start
-            while anchor + j * period <= last:
-                grid.append(date.fromordinal(int(round(anchor + j * period))))
-                j += 1
-            return grid
-        end = until.toordinal()
-        while True:
-            day = int(round(anchor + j * period))
-            grid.append(date.fromordinal(day))
-            if day > end:
-                break
-            j += 1
-        return grid
+    def _skipped(waves: list[date], spacing: np.ndarray, periods: np.ndarray, on: np.ndarray) -> list[date]:
+        """Starts of the grid missing between two real starts that are a whole number of periods apart.
 
-    def expected_windows(self, days_before: int) -> pd.DataFrame:
-        """The ``days_before`` days before each expected start: ``starts_on``, ``window_from_on``, ``window_to_on``."""
+        The phase is local: the missing starts divide the spacing between their two neighbouring
+        real starts evenly, so a phase shift elsewhere in the calendar (after an irregular gap)
+        cannot move them.
+        """
+        skipped = []
+        for i in np.flatnonzero(on & (periods >= 2)):
+            step = spacing[i] / periods[i]
+            for j in range(1, int(periods[i])):
+                skipped.append(waves[i] + timedelta(days=int(round(j * step))))
+        return skipped
+
+    @staticmethod
+    def _beyond(last: date, period: float, until: date) -> list[date]:
+        """Grid starts after the last real one, up to the first start past ``until``."""
+        grid, j = [], 1
+        while True:
+            day = last + timedelta(days=int(round(j * period)))
+            grid.append(day)
+            if day > until:
+                return grid
+            j += 1
+
+    def expected_windows(self, days_before: int, blocked=()) -> pd.DataFrame:
+        """The windows before each expected start; see :func:`anticipation_windows`."""
         self._check_fitted()
-        rows = [
-            {"starts_on": s, "window_from_on": s - timedelta(days=days_before), "window_to_on": s - timedelta(days=1)}
-            for s in self.expected_starts_
-        ]
-        return pd.DataFrame(rows, columns=["starts_on", "window_from_on", "window_to_on"])
+        return anticipation_windows(self.expected_starts_, days_before, blocked, observed=self.starts_)
 
     def _summary_frame(self) -> pd.DataFrame:
         return pd.DataFrame(
@@ -193,6 +203,7 @@ class CampaignCadence(FittedMixin):
                     "first_start_on": self.starts_[0] if self.starts_ else None,
                     "last_start_on": self.starts_[-1] if self.starts_ else None,
                     "n_expected_starts": len(self.expected_starts_),
+                    "n_skipped_starts": len(self.skipped_starts_),
                     "note": self.note_,
                 }
             ]
@@ -200,3 +211,67 @@ class CampaignCadence(FittedMixin):
 
     def _header(self) -> dict[str, object]:
         return {"tolerance days": self.tolerance_days, "expected starts": self.expected_starts}
+
+
+WINDOW_COLUMNS = ["window_no", "starts_on", "is_observed_start", "window_from_on", "window_to_on", "window_days",
+                  "window_note"]
+
+
+def anticipation_windows(expected_starts: Iterable, days_before: int, blocked: Iterable = (), *,
+                         observed: Iterable = ()) -> pd.DataFrame:
+    """The ``days_before`` days before each expected start, cut clear of other promotions.
+
+    Parameters
+    ----------
+    expected_starts : iterable of date
+    days_before : int
+        Length of the window before a start (``anticipation_days``).
+    blocked : iterable of (date, date, str)
+        Days that no window may hold, inclusive, with what they are: each promotion's running
+        window and the window after it. A window keeps its days next to the start up to the
+        first blocked day before it; a window left with no day is kept as a row with a note and
+        no ``window_no``.
+    observed : iterable of date
+        The real starts (``is_observed_start``).
+
+    Returns
+    -------
+    DataFrame
+        ``window_no`` (1, 2, .. in date order; missing for a window with no day left),
+        ``starts_on``, ``is_observed_start``, ``window_from_on``, ``window_to_on``,
+        ``window_days``, ``window_note``.
+
+    Examples
+    --------
+    >>> from datetime import date
+    >>> w = anticipation_windows([date(2025, 3, 3)], 7, [(date(2025, 1, 20), date(2025, 2, 26), "P1 and after")])
+    >>> (str(w.loc[0, "window_from_on"]), int(w.loc[0, "window_days"]))
+    ('2025-02-27', 4)
+    """
+    if isinstance(days_before, bool) or not isinstance(days_before, (int, np.integer)) or days_before < 1:
+        raise ConfigError(f"timing.anticipation_days must be a whole number of at least 1, found {days_before!r}")
+    blocked = [(pd.Timestamp(a).date(), pd.Timestamp(b).date(), str(what)) for a, b, what in blocked]
+    observed = {pd.Timestamp(d).date() for d in observed}
+    rows = []
+    for start in sorted({pd.Timestamp(d).date() for d in expected_starts}):
+        first, last = start - timedelta(days=int(days_before)), start - timedelta(days=1)
+        cut_by = None
+        for low, high, what in blocked:
+            if low <= last and high >= first:  # overlaps the window: keep the days after it
+                if high + timedelta(days=1) > first:
+                    first, cut_by = high + timedelta(days=1), what
+        days = (last - first).days + 1
+        if days <= 0:
+            note = f"no window: the {days_before} days before the start lie in {cut_by}"
+        elif cut_by:
+            note = f"shortened to {days} day(s): clear of {cut_by}"
+        else:
+            note = ""
+        rows.append({"starts_on": start, "is_observed_start": start in observed,
+                     "window_from_on": first if days > 0 else None, "window_to_on": last if days > 0 else None,
+                     "window_days": max(days, 0), "window_note": note})
+    frame = pd.DataFrame(rows, columns=WINDOW_COLUMNS[1:])
+    usable = frame["window_days"] > 0
+    frame.insert(0, "window_no", pd.array([pd.NA] * len(frame), dtype="Int64"))
+    frame.loc[usable, "window_no"] = np.arange(1, int(usable.sum()) + 1)
+    return frame[WINDOW_COLUMNS]

@@ -8,7 +8,8 @@ periods of the discrete-time model) are registered as relations, never formatted
 
 Order of the files (each reads only the panels, the checked inputs and earlier ones):
 ``timing_purchase_days`` -> ``timing_calendar`` -> ``timing_customer_changes`` ->
-``timing_spells`` (a view) -> ``timing_cells``, ``timing_gap_counts``, ``timing_cox_sample``.
+``timing_spells`` (a view) -> ``timing_cells``, ``timing_gap_counts``, ``timing_cox_sample``,
+``timing_window_exposure``; ``timing_arm_cells`` reads the ``campaign_windows`` and ``purchase_gaps`` panels alone.
 """
 
 from __future__ import annotations
@@ -33,9 +34,13 @@ ORDER = (
     "timing_cells",
     "timing_gap_counts",
     "timing_cox_sample",
+    "timing_window_exposure",
+    "timing_arm_cells",
 )
 EPOCH = date(1970, 1, 1)
-COVARIATES = ("promotion_available", "in_dip", "in_dip_during_promotion", "in_anticipation", "coupons_received")
+COVARIATES = ("promotion_available", "in_dip", "in_dip_during_promotion", "in_anticipation", "coupons_received",
+              "is_exposed")
+WINDOW_FRAME_COLUMNS = ("window_no", "start_day", "window_from_day", "window_to_day")
 DIP_AFTER = ("targeted", "any")
 
 
@@ -76,6 +81,30 @@ def periods_table(horizon_days: int, max_days: int) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def window_frame(windows: pd.DataFrame) -> pd.DataFrame:
+    """The usable windows as the SQL reads them: day numbers, one row per window with days."""
+    if windows is None or windows.empty:
+        return pd.DataFrame({c: pd.Series(dtype="int32") for c in WINDOW_FRAME_COLUMNS})
+    usable = windows[windows["window_no"].notna()]
+    return pd.DataFrame({
+        "window_no": usable["window_no"].astype("int32").to_numpy(),
+        "start_day": np.array([day_number(d) for d in usable["starts_on"]], dtype=np.int32),
+        "window_from_day": np.array([day_number(d) for d in usable["window_from_on"]], dtype=np.int32),
+        "window_to_day": np.array([day_number(d) for d in usable["window_to_on"]], dtype=np.int32),
+    })
+
+
+def merge_periods(periods) -> list[tuple[date, date]]:
+    """Merge overlapping or touching (date, date) periods into disjoint ones, in date order."""
+    merged: list[list[date]] = []
+    for low, high in sorted((pd.Timestamp(a).date(), pd.Timestamp(b).date()) for a, b in periods):
+        if merged and (low - merged[-1][1]).days <= 1:
+            merged[-1][1] = max(merged[-1][1], high)
+        else:
+            merged.append([low, high])
+    return [(a, b) for a, b in merged]
+
+
 def sql_text(name: str) -> str:
     path = SQL_DIR / f"{name}.sql"
     if not path.is_file():
@@ -91,11 +120,17 @@ class TimingTables:
     con : duckdb.DuckDBPyConnection
         Workspace connection (panels, with the checked inputs attached as ``checked``).
     options : SpellOptions
-    expected_starts : list of date
-        Expected campaign starts (empty when the cadence is not regular).
+    windows : DataFrame
+        The anticipation windows before the expected starts, cut clear of other promotions
+        (:func:`toolkit.timing.schedule.anticipation_windows`): ``window_no``, ``starts_on``,
+        ``window_from_on``, ``window_to_on``; rows without a ``window_no`` are left out.
+    exposure_periods : list of (date, date)
+        Merged, non-overlapping periods (inclusive) in which a purchase rate would include a
+        promotion's own purchases; purchase days in them take the rate measured before.
     """
 
-    def __init__(self, con: duckdb.DuckDBPyConnection, options: SpellOptions, expected_starts: list[date]) -> None:
+    def __init__(self, con: duckdb.DuckDBPyConnection, options: SpellOptions, windows: pd.DataFrame,
+                 exposure_periods=()) -> None:
         if options.dip_after not in DIP_AFTER:
             raise AnalysisError(f"dip_after must be one of {', '.join(DIP_AFTER)}, found {options.dip_after!r}")
         self.options = options
@@ -115,8 +150,10 @@ class TimingTables:
             ("timing_min_history_days", int(options.min_history_days)),
         )
         self._set_variables(cur)
-        starts = pd.DataFrame({"start_day": np.array([day_number(d) for d in expected_starts], dtype=np.int32)})
-        self._register("timing_expected_starts", starts)
+        self._register("timing_expected_starts", window_frame(windows))
+        periods_frame = pd.DataFrame({"from_day": [day_number(a) for a, _ in exposure_periods],
+                                      "to_day": [day_number(b) for _, b in exposure_periods]}, dtype="int32")
+        self._register("timing_exposure_periods", periods_frame)
         cur.execute(sql_text("timing_purchase_days"))
         n_days, max_gap = cur.execute(
             "SELECT count(*), coalesce(max(gap_days), 0) FROM timing_purchase_days").fetchall()[0]
@@ -144,6 +181,12 @@ class TimingTables:
     # -- outputs ----------------------------------------------------------------------------------
     def cells(self) -> pd.DataFrame:
         return self.cursor.execute("SELECT * FROM timing_cells").df()
+
+    def arm_cells(self) -> pd.DataFrame:
+        return self.cursor.execute("SELECT * FROM timing_arm_cells ORDER BY promotion_id, is_treated, block").df()
+
+    def window_exposure(self) -> pd.DataFrame:
+        return self.cursor.execute("SELECT * FROM timing_window_exposure ORDER BY window_no").df()
 
     def gap_counts(self) -> pd.DataFrame:
         return self.cursor.execute("SELECT * FROM timing_gap_counts").df()
