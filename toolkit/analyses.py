@@ -11,8 +11,9 @@ def runners() -> list:
     """The analysis runners, in order: callables (settings, out_dir, console) -> facts for the manifest."""
     from .effects.api import run_campaigns
     from .timing.api import run_timing
+    from .longrun.api import run_longrun
 
-    return [run_campaigns, run_timing]
+    return [run_campaigns, run_timing, run_longrun]
 
 
 def run_all(settings, out: Path, console=None, timings: dict | None = None) -> list[str]:

@@ -82,13 +82,18 @@ class CheckResult:
 
 
 def input_fingerprint(settings: Settings) -> tuple[str, dict]:
-    files = {}
-    for name, table in settings.tables.items():
-        files[name] = sources.fingerprint_files(sources.resolve_files(settings, table))
-    rules = {r.name: r.sql() for r in RULES}
-    source_code = [Path(path).read_text(encoding="utf-8") for path in (sources.__file__, __file__)]
-    config = {k: v for k, v in settings.raw.items() if k in ("tables", "economics", "checks", "gates")}
-    return workspace.fingerprint(config, files, rules, source_code), files
+    """The check's fingerprint (inputs by content, table mappings, check settings, rules, code) and
+    the input files' fingerprints per table (see ``toolkit.freshness``)."""
+    from . import freshness
+
+    record = freshness.current(settings)
+    return freshness.check_fingerprint(record), record["inputs"]
+
+
+def state_entry(result: "CheckResult") -> dict:
+    """What state.json keeps of a check."""
+    return {"fingerprint": result.fingerprint, "usable": result.usable, "problems": result.problems,
+            "summary": result.summary.to_dict(orient="records")}
 
 
 def _shifted(moment: dt.datetime, days: int) -> dt.datetime:
@@ -164,8 +169,11 @@ def _typed_attribute(con, table: str, column: str) -> str:
 PERSISTED = tuple(name for name in INPUT_TABLES if name != "transactions")
 
 
-def run(settings: Settings, progress=None) -> CheckResult:
+def run(settings: Settings, progress=None, *, notify=None) -> CheckResult:
     """Validate the export and write ``checked.duckdb`` to the workspace.
+
+    Holds the workspace lock (a running build is waited for, see ``toolkit.lock``); the published
+    panels are not touched: analyses find out for themselves whether they are stale.
 
     Parameters
     ----------
@@ -173,28 +181,47 @@ def run(settings: Settings, progress=None) -> CheckResult:
         The loaded config.
     progress : callable, optional
         Called with a short text before each step.
+    notify : callable, optional
+        Called with a line of text about the workspace lock.
 
     Raises
     ------
     DataError
         A file is missing, empty or unreadable, or a required column is absent.
     """
-    con = open_engine(settings)
-    try:
-        return validate(con, settings, progress)
-    finally:
-        con.close()
+    from .lock import hold
+
+    with hold(settings.workspace_dir, wait=settings.workspace.lock_wait_seconds, notify=notify):
+        workspace.remove_leftovers(settings)
+        con = open_engine(settings)
+        try:
+            result = validate(con, settings, progress)
+        finally:
+            con.close()
+        state = workspace.read_state(settings)
+        state["check"] = state_entry(result)
+        workspace.write_state(settings, state)
+    return result
 
 
-def validate(con, settings: Settings, progress=None) -> CheckResult:
-    """Stage the export on ``con``, run every rule, write ``checked.duckdb`` and the state.
+def validate(con, settings: Settings, progress=None, *, checked_path: Path | None = None,
+             fingerprint: str | None = None) -> CheckResult:
+    """Stage the export on ``con``, run every rule and write the checked tables.
 
     Leaves on ``con`` the temporary views ``accepted_<table>`` (accepted rows, typed, with the
     contract's derivations) that the panels are built from.
+
+    Parameters
+    ----------
+    checked_path : Path, optional
+        Where to write the checked tables (a private file of the caller, who publishes it). By
+        default they are written to a private file and published as ``checked.duckdb``.
+    fingerprint : str, optional
+        The check's fingerprint when the caller has it (``toolkit.freshness.check_fingerprint``).
     """
     started = time.perf_counter()
     say = progress or (lambda text: None)
-    fp, _ = input_fingerprint(settings)
+    fp = fingerprint or input_fingerprint(settings)[0]
     infos = sources.register(con, settings, progress=say)
     for statement in sources.staged_union_sql():
         con.execute(statement)
@@ -252,14 +279,20 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
         # The data can be read; can it answer the question? (toolkit.gates)
         say("sanity gates")
         problems = gates.evaluate(con, settings, summary)
-    with workspace.atomic_database(settings, workspace.CHECKED) as target:
-        say("writing checked tables")
+    target = checked_path or workspace.private_path(settings, workspace.CHECKED)
+    say("writing checked tables")
+    try:
         con.execute("ATTACH ? AS out", [str(target)])
         for name in PERSISTED:
             con.execute(f"CREATE TABLE out.{q(name)} AS SELECT * FROM {q('accepted_' + name)}")
         _write_rejects(con)
         con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df")
         con.execute("DETACH out")
+    except BaseException:
+        workspace.discard(target)
+        raise
+    if checked_path is None:
+        workspace.publish(settings, target, workspace.CHECKED)
     rejects = con.execute("SELECT * FROM rejects_summary_df").df()
     warnings = con.execute(
         "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
@@ -271,14 +304,6 @@ def validate(con, settings: Settings, progress=None) -> CheckResult:
         "FROM rejected AS r INNER JOIN staged_all_sources AS s ON r.table_name = s.table_name AND r._row_id = s._row_id"
         ") WHERE n <= 3 ORDER BY 1, 2, 3"
     ).df()
-    state = workspace.read_state(settings)
-    state["check"] = {"fingerprint": fp, "usable": not problems, "problems": problems,
-                      "summary": summary.to_dict(orient="records")}
-    if state.get("build", {}).get("check_fingerprint") != fp:
-        # Panels built from other inputs must not be served beside this check.
-        state.pop("build", None)
-        workspace.path(settings, workspace.PANELS).unlink(missing_ok=True)
-    workspace.write_state(settings, state)
     return CheckResult(summary, rejects, warnings, problems, fp, time.perf_counter() - started, examples)
 
 

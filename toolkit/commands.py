@@ -10,7 +10,11 @@ def register_all(sub, config_arg) -> None:
     from .core_commands import register as register_core
     from .effects.command import register as register_campaign
     from .timing.command import register as register_timing
+    from .longrun.command import register as register_longrun
+    from .report.quarter.command import register as register_quarter
 
     register_core(sub, config_arg)
     register_campaign(sub, config_arg)
     register_timing(sub, config_arg)
+    register_longrun(sub, config_arg)
+    register_quarter(sub, config_arg)

@@ -91,11 +91,40 @@ class TimingSettings:
     min_arm_customers: int = 30
 
 
+@dataclass(frozen=True)
+class LongrunSettings:
+    """``[longrun]``: the long-run analyses (``liftlag longrun``). Each setting is documented in README."""
+
+    seed: int = 20261201
+    alpha: float = 0.05
+    bootstrap_rounds: int = 200
+    n_blocks: int = 64
+    reference_depth: float = 0.2
+    dependent_threshold: float = 0.5
+    responsiveness_sample_customers: int = 20000
+    coupons_cap: int = 20
+    drift_sample_customers: int = 5000
+    drift_folds: int = 5
+    drift_permutation_repeats: int = 3
+    drift_adjacent: bool = True
+    min_cohort_customers: int = 50
+    cohort_burn_in_days: int = 90
+    lapse_days: int = 180
+    retention_step_days: int = 30
+    cohort_sample_customers: int = 50000
+    broadcast_pre_days: int = 365
+    broadcast_min_pre_days: int = 28
+    broadcast_mask_after_days: int = 14
+    broadcast_mask_before_days: int = 7
+    broadcast_parameter_draws: int = 100
+
+
 # Settings that take one of a few words.
 CHOICES = {
     "timing.dip_after": ("targeted", "any"),
     "timing.expected_starts": ("cadence", "observed"),
     "engine.kind": ("duckdb", "spark"),
+    "workspace.on_failed_build": ("refuse", "use_last_good"),
 }
 
 
@@ -122,11 +151,24 @@ class GateSettings:
 @dataclass(frozen=True)
 class ReportSettings:
     small_cell: int = 10
+    # The quarterly report (`liftlag quarter`): cells describing fewer customers are suppressed.
+    min_cell_customers: int = 10
+    # The overall call's rule (healthy / watch / act), written out in the report's methods section.
+    act_min_adverse: int = 2
+    watch_min_adverse: int = 1
+    act_on_negative_margin: bool = True
+    watch_on_groups_against: bool = True
+    # Weeks around each campaign's start in the event-study chart.
+    event_weeks_before: int = 8
+    event_weeks_after: int = 8
 
 
 @dataclass(frozen=True)
 class WorkspaceSettings:
     path: Path = Path(".liftlag")
+    lock_wait_seconds: int = 600  # how long a build waits for another one before exit 2 (0: not at all)
+    auto_build: bool = True  # analyses build the panels first when they are missing or stale
+    on_failed_build: str = "refuse"  # or "use_last_good": read the last good panels, saying so
 
 
 @dataclass(frozen=True)
@@ -149,6 +191,7 @@ class Settings:
     windows: WindowSettings = WindowSettings()
     campaign: CampaignSettings = CampaignSettings()
     timing: TimingSettings = TimingSettings()
+    longrun: LongrunSettings = LongrunSettings()
     report: ReportSettings = ReportSettings()
     checks: CheckSettings = CheckSettings()
     gates: GateSettings = GateSettings()
@@ -174,6 +217,7 @@ _SECTIONS = {
     "windows": WindowSettings,
     "campaign": CampaignSettings,
     "timing": TimingSettings,
+    "longrun": LongrunSettings,
     "report": ReportSettings,
     "checks": CheckSettings,
     "gates": GateSettings,
@@ -323,6 +367,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = value
         elif key in ("holdout_share", "untargeted_share", "margin_rate", "uplift_threshold",
                      "baseline_threshold", "target_lift", "min_regular_share",
+                     "reference_depth", "dependent_threshold",
                      "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
                      "max_outlying_date_share"):
             kwargs[key] = _share(path, full, value)
@@ -341,7 +386,7 @@ def _parse_section(path: Path, name: str, body: Any):
             kwargs[key] = float(a)
         elif isinstance(default, int) or key == "threads":
             v = _expect(path, full, value, int, "a whole number")
-            if v < 0 or (v == 0 and key not in ("seed", "future_days")):
+            if v < 0 or (v == 0 and key not in ("seed", "future_days", "lock_wait_seconds")):
                 raise ConfigError(f"{path}: key '{full}' must be a positive whole number, found {value!r}")
             kwargs[key] = v
         else:

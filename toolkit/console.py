@@ -60,8 +60,13 @@ def shown_file(source_file: str) -> str:
     return "/".join(parts)
 
 
-def run_build(settings, force: bool = False):
-    """Check (when needed) and build the panels, showing progress; returns the BuildResult."""
+def run_build(settings, force: bool = False, *, wait: float | None = None):
+    """Check (when needed) and build the panels, showing progress; returns the BuildResult.
+
+    The check table is printed as soon as the check is done, so that it is there also when the
+    build then fails; notes about the workspace lock (waiting for another build, a stale lock
+    taken over) go to ``err_console``.
+    """
     from . import panels
 
     started = time.perf_counter()
@@ -69,12 +74,17 @@ def run_build(settings, force: bool = False):
         def progress(step, detail=""):
             status.update(f"{step}: {escape(detail)}")
 
-        result = panels.build(settings, force=force, progress=progress)
-    if result.check is not None:
-        print_check(result.check)
+        def notify(text):
+            err_console.print(f"[yellow]note:[/] {escape(text)}")
+
+        result = panels.build(settings, force=force, progress=progress, on_check=print_check, notify=notify, wait=wait)
     if result.skipped:
         console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
     else:
+        if result.reasons:
+            from .freshness import summary
+
+            console.print(f"built because: {escape(summary(result.reasons))}")
         table = Table(title=f"panels ({time.perf_counter() - started:.1f} s)")
         for col in ("panel", "rows", "seconds"):
             table.add_column(col, justify="left" if col == "panel" else "right")

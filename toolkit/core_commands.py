@@ -32,6 +32,9 @@ def register(sub, config_arg) -> None:
     p = sub.add_parser("build", help="build the panels (skipped when inputs and config are unchanged)")
     config_arg(p)
     p.add_argument("--force", action="store_true", help="rebuild even when nothing changed")
+    p.add_argument("--wait", type=float, default=None, metavar="SECONDS",
+                   help="wait this long for another build of the workspace to finish, then exit 2 "
+                        "(default: [workspace] lock_wait_seconds, 600)")
 
     p = sub.add_parser("sql", help="print the panel SQL, transpiled for another engine")
     p.add_argument("--dialect", required=True, help="spark, postgres, snowflake or bigquery (or duckdb, as written)")
@@ -53,7 +56,8 @@ def cmd_check(args) -> int:
 
         check_out_dir(args.out)
     with console.status("checking the export…") as status:
-        result = checks.run(settings, progress=lambda text: status.update(f"check: {text}"))
+        result = checks.run(settings, progress=lambda text: status.update(f"check: {escape(text)}"),
+                            notify=lambda text: err_console.print(f"[yellow]note:[/] {escape(text)}"))
     print_check(result)
     if args.out:
         write_tables(Path(args.out), {"rejects_summary": result.rejects, "check_summary": result.summary})
@@ -69,7 +73,9 @@ def cmd_build(args) -> int:
     from . import config
 
     settings = config.load(args.config)
-    run_build(settings, force=args.force)
+    if args.wait is not None and args.wait < 0:
+        raise ConfigError(f"--wait {args.wait:g}: give a number of seconds, 0 or more")
+    run_build(settings, force=args.force, wait=args.wait)
     return 0
 
 

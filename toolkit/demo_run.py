@@ -70,6 +70,13 @@ def run_demo(out: Path, seed: int | None = None, customers: int | None = None, c
         con.close()
     write_tables(out, tables)
     ran = analyses.run_all(settings, out, console=console, timings=timings)
+    # Last: the latest complete quarter's promotion health report, in <out>/quarter-<Q>/.
+    from .report.quarter.api import run_demo_quarter
+
+    t0 = time.perf_counter()
+    quarter_facts = run_demo_quarter(settings, out, console)
+    timings["quarter_report"] = round(time.perf_counter() - t0, 2)
+    ran.append("quarter_report")
     timings["total"] = round(time.perf_counter() - started, 2)
     write_manifest(
         out,
@@ -81,6 +88,7 @@ def run_demo(out: Path, seed: int | None = None, customers: int | None = None, c
         row_counts=result.rows,
         timings=timings,
         analyses=ran,
+        quarter_report=quarter_facts,
     )
     console.print(f"demo done in {timings['total']:.1f} s; results in [bold]{escape(str(out))}[/]")
     return 0

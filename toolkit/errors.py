@@ -25,6 +25,12 @@ class DataError(LiftlagError):
     exit_code = 3
 
 
+class WorkspaceBusy(LiftlagError):
+    """Another process holds the workspace (a build is running); the message names it (exit code 2)."""
+
+    exit_code = 2
+
+
 class AnalysisError(LiftlagError):
     """An analysis could not be done on this data; the message says why (exit code 1)."""
 

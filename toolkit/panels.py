@@ -2,23 +2,27 @@
 
 Each file's stem is the table it builds; it reads only the accepted input rows (under the
 contract's table names) and the panels before it. Parameters (window lengths, margin rate) are
-bound as DuckDB variables, never formatted into the SQL. ``build`` checks the export and builds the
-panels in one pass over the files, writes them to ``panels.duckdb.partial`` and moves that into
-place when all are built; it skips the work when the inputs, the SQL and the settings it depends
-on are unchanged.
+bound as DuckDB variables, never formatted into the SQL. ``build`` holds the workspace lock, checks
+the export and builds the panels in one pass over the files into a private file, and publishes it
+as ``panels.duckdb`` with one rename when all are built; it skips the work when the inputs (by
+content), the SQL and the settings each panel reads are unchanged (``toolkit.freshness``).
 """
 
 from __future__ import annotations
 
+import json
 import time
 import warnings
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from . import checks, sqlfiles, workspace
+import duckdb
+
+from . import checks, freshness, sqlfiles, workspace
 from .config import Settings
 from .contract import INPUT_TABLES, PANELS
 from .engine import open_engine
+from .engine.duckdb import connect as engine_connect
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError, DataWarning
@@ -40,6 +44,15 @@ def parameters(settings: Settings) -> dict[str, object]:
     }
 
 
+def parameter_settings() -> dict[str, str]:
+    """Each parameter's key in the config (for the reasons a rebuild gives)."""
+    return {
+        "margin_rate": "economics.margin_rate",
+        "pre_period_days": "windows.pre_period_days",
+        "after_days": "windows.after_days",
+    }
+
+
 @dataclass
 class BuildResult:
     skipped: bool
@@ -47,15 +60,24 @@ class BuildResult:
     seconds: dict[str, float] = field(default_factory=dict)
     check: checks.CheckResult | None = None
     fingerprint: str = ""
+    reasons: list[str] = field(default_factory=list)  # why it was built (empty when skipped)
+    taken_over: dict | None = None  # the holder of a stale lock this build took over
 
 
-def build_fingerprint(settings: Settings, check_fingerprint: str) -> str:
-    sql = {name: panel_sql(name) for name in PANEL_ORDER}
-    return workspace.fingerprint(check_fingerprint, sql, parameters(settings))
+def build_fingerprint(settings: Settings) -> str:
+    """The fingerprint a build of ``settings`` would have now (see ``toolkit.freshness``)."""
+    return freshness.build_fingerprint(freshness.current(settings))
 
 
-def build(settings: Settings, *, force: bool = False, progress=None) -> BuildResult:
+def build(settings: Settings, *, force: bool = False, progress=None, on_check=None, notify=None,
+          wait: float | None = None, command: str | None = None) -> BuildResult:
     """Check the export and build every panel into ``panels.duckdb``, in one pass over the files.
+
+    Holds the workspace lock throughout (waiting up to ``wait`` seconds, default
+    ``[workspace] lock_wait_seconds``, for another build). Writes to private files and publishes
+    ``panels.duckdb`` with one rename when every panel is built; on any failure, or Ctrl-C, the
+    private files are removed, the published panels stay as they were, and ``state.json`` records
+    the failure (when, why, at which step).
 
     Parameters
     ----------
@@ -63,31 +85,96 @@ def build(settings: Settings, *, force: bool = False, progress=None) -> BuildRes
     force : bool, default=False
         Rebuild even when nothing has changed.
     progress : callable, optional
-        Called with ``(step, detail)`` as work proceeds.
+        Called with ``(step, detail)`` as work proceeds (steps: check, panel, publish).
+    on_check : callable, optional
+        Called with the CheckResult as soon as the check is done, also when the build then fails.
+    notify : callable, optional
+        Called with a line of text about the lock (waiting for another build, a stale lock taken over).
+    wait : float, optional
+        Seconds to wait for the workspace lock.
+    command : str, optional
+        The command recorded as the lock's holder and in state.json.
 
     Raises
     ------
     DataError
         The check found the export unusable (the message lists why).
+    WorkspaceBusy
+        Another process held the workspace longer than ``wait`` (exit code 2).
     """
+    from .lock import command_line, hold
+
     say = progress or (lambda step, detail="": None)
-    check_fp, _ = checks.input_fingerprint(settings)
-    fp = build_fingerprint(settings, check_fp)
-    state = workspace.read_state(settings)
-    panels_path = workspace.path(settings, workspace.PANELS)
-    if (not force and state.get("build", {}).get("fingerprint") == fp and panels_path.exists()
-            and state.get("check", {}).get("fingerprint") == check_fp):
-        return BuildResult(skipped=True, rows=state["build"].get("rows", {}), fingerprint=fp)
+    wait = settings.workspace.lock_wait_seconds if wait is None else wait
+    command = command or command_line()
+    with hold(settings.workspace_dir, command, wait=wait, notify=notify) as taken_over:
+        workspace.remove_leftovers(settings)
+        step = {"now": "reading the inputs"}
+        fp = None
+
+        def track(kind, detail=""):
+            step["now"] = f"{kind}: {detail}" if detail else kind
+            say(kind, detail)
+
+        try:
+            record = freshness.current(settings)
+            fp = freshness.build_fingerprint(record)
+            published = workspace.published_build(settings)
+            if not force and published is not None and published.get("fingerprint") == fp:
+                state = workspace.read_state(settings)
+                if state.pop("failed", None) is not None:  # the inputs are back to those of the good build
+                    workspace.write_state(settings, state)
+                return BuildResult(skipped=True, rows=published.get("rows", {}), fingerprint=fp, taken_over=taken_over)
+            reasons = ["forced (--force)"] if force else freshness.differences(
+                published.get("record") if published else None, record)
+            result = _build(settings, record, fp, track, on_check, command)
+            result.reasons, result.taken_over = reasons, taken_over
+            return result
+        except BaseException as exc:
+            interrupted = _is_interrupt(exc)
+            reason = "interrupted (Ctrl-C)" if interrupted else (str(exc) or type(exc).__name__)
+            try:
+                workspace.record_failure(
+                    settings, status="interrupted" if interrupted else "failed", reason=reason,
+                    exit_code=1 if interrupted else getattr(exc, "exit_code", 1), step=step["now"],
+                    fingerprint=fp, command=command, error=type(exc).__name__,
+                )
+            except OSError:
+                pass  # a read-only workspace: the error itself says what is wrong
+            if interrupted and not isinstance(exc, KeyboardInterrupt):
+                raise KeyboardInterrupt from exc  # DuckDB's own error for Ctrl-C inside a query
+            raise
+
+
+def _is_interrupt(exc: BaseException) -> bool:
+    """Ctrl-C: Python's KeyboardInterrupt, or DuckDB's error when it arrives inside a query."""
+    if isinstance(exc, (KeyboardInterrupt, duckdb.InterruptException)):
+        return True
+    return isinstance(exc, (duckdb.Error, RuntimeError)) and "interrupted" in str(exc).lower()
+
+
+def _build(settings: Settings, record: dict, fp: str, say, on_check, command: str) -> BuildResult:
+    """The build proper, under the lock: check, panels, publish."""
     if settings.economics.margin_rate is None and "products" not in settings.tables:
         warnings.warn(
             f"{settings.config_path}: no products table and no economics.margin_rate: margins "
             "(margin_amount, margin after discount) will be empty; set economics.margin_rate",
-            DataWarning, stacklevel=2,
+            DataWarning, stacklevel=3,
         )
+    started_at = workspace.now()
+    started = time.perf_counter()
     result = BuildResult(skipped=False, fingerprint=fp)
+    checked_private = workspace.private_path(settings, workspace.CHECKED)
+    panels_private = workspace.private_path(settings, workspace.PANELS)
+    checked_done = False
     con = open_engine(settings)
     try:
-        result.check = checks.validate(con, settings, progress=lambda text: say("check", text))
+        result.check = checks.validate(con, settings, progress=lambda text: say("check", text),
+                                       checked_path=checked_private,
+                                       fingerprint=freshness.check_fingerprint(record))
+        checked_done = True
+        if on_check is not None:
+            on_check(result.check)
         if not result.check.usable:
             raise DataError("the export cannot be used as it is:\n  - " + "\n  - ".join(result.check.problems))
         # The panels read the accepted rows under the contract's table names.
@@ -95,23 +182,72 @@ def build(settings: Settings, *, force: bool = False, progress=None) -> BuildRes
             con.execute(f"CREATE OR REPLACE TEMP VIEW {q(name)} AS SELECT * FROM {q('accepted_' + name)}")
         for key, value in parameters(settings).items():
             con.execute(f"SET VARIABLE {key} = ?", [value])
-        with workspace.atomic_database(settings, workspace.PANELS) as target:
-            con.execute("ATTACH ? AS out", [str(target)])
-            con.execute("SET search_path = 'out.main'")
-            for name in PANEL_ORDER:
-                say("panel", name)
-                started = time.perf_counter()
-                con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
-                result.seconds[name] = round(time.perf_counter() - started, 3)
-                result.rows[name] = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
-            con.execute("SET search_path = 'memory.main'")
-            con.execute("DETACH out")
-    finally:
+        con.execute("ATTACH ? AS out", [str(panels_private)])
+        con.execute("SET search_path = 'out.main'")
+        for name in PANEL_ORDER:
+            say("panel", name)
+            t0 = time.perf_counter()
+            con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
+            result.seconds[name] = round(time.perf_counter() - t0, 3)
+            result.rows[name] = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
+        con.execute("SET search_path = 'memory.main'")
+        con.execute("DETACH out")
+        say("publish", "checked inputs and build record")
+        build = {
+            "fingerprint": fp,
+            "check_fingerprint": freshness.check_fingerprint(record),
+            "started_at": started_at,
+            "finished_at": workspace.now(),
+            "seconds": round(time.perf_counter() - started, 2),
+            "rows": result.rows,
+            "panel_seconds": result.seconds,
+            "command": command,
+            "version": record["version"],
+            "record": record,
+        }
+        _seal(settings, panels_private, checked_private, build)
+    except BaseException:
         con.close()
+        workspace.discard(panels_private)
+        if checked_done:
+            # The failed check's rejects are for people to read (analyses never read this file).
+            workspace.publish(settings, checked_private, workspace.CHECKED)
+        else:
+            workspace.discard(checked_private)
+        raise
+    con.close()
+    workspace.publish(settings, panels_private, workspace.PANELS)  # the commit point
+    workspace.publish(settings, checked_private, workspace.CHECKED)
     state = workspace.read_state(settings)
-    state["build"] = {"fingerprint": fp, "check_fingerprint": check_fp, "rows": result.rows, "seconds": result.seconds}
+    state.pop("failed", None)
+    state["build"] = {k: v for k, v in build.items() if k != "record"}
+    state["build"]["panels"] = {name: {**record["panels"][name], "rows": result.rows[name],
+                                       "seconds": result.seconds[name]} for name in PANEL_ORDER}
+    state["build"]["inputs"] = record["inputs"]
+    state["check"] = checks.state_entry(result.check)
     workspace.write_state(settings, state)
     return result
+
+
+def _seal(settings: Settings, panels_private: Path, checked_private: Path, build: dict) -> None:
+    """Put the checked inputs (schema ``checked``) and the build record (``meta.build``) into the
+    private panels file, so that a reader sees one build, whole. Plain DuckDB on the two private
+    files, whichever engine built them."""
+    con = engine_connect(settings, panels_private)
+    try:
+        con.execute("ATTACH ? AS chk (READ_ONLY)", [str(checked_private)])
+        con.execute("CREATE SCHEMA checked")
+        for (table,) in con.execute(
+                "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' ORDER BY 1").fetchall():
+            con.execute(f"CREATE TABLE checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
+        con.execute("DETACH chk")
+        con.execute("CREATE SCHEMA meta")
+        con.execute(f"CREATE TABLE {workspace.META_TABLE} (fingerprint VARCHAR, record VARCHAR)")
+        con.execute(f"INSERT INTO {workspace.META_TABLE} VALUES (?, ?)",
+                    [build["fingerprint"], json.dumps(build, default=str)])
+        con.execute("CHECKPOINT")  # the file is complete, with no write-ahead log
+    finally:
+        con.close()
 
 
 def sql_files() -> list[Path]:

@@ -141,13 +141,16 @@ def _duplicate_header(con, table: TableSettings, contract: InputTable, reader: s
     """A CSV header naming one column twice: an error when it is a contract column, else a warning."""
     if table.format != "csv" or not table.header:
         return
-    opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
-    opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
-    con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
-    try:
-        row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
-    except duckdb.Error:
-        return  # the full read reports the cause
+    if hasattr(con, "header_row"):  # the Spark engine reads the files itself
+        row = con.header_row(table, files[0])
+    else:
+        opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
+        opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
+        con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
+        try:
+            row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
+        except duckdb.Error:
+            return  # the full read reports the cause
     if not row:
         return
     names = [str(v).strip() for v in row[0] if v is not None]
@@ -321,7 +324,9 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None) 
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
             select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy)
-            kind = "VIEW" if table.format == "parquet" else "TABLE"
+            # On Spark every stage is a table (computed once, its plan cut short): a view's plan is
+            # analysed again by every rule that reads it.
+            kind = "VIEW" if table.format == "parquet" and not hasattr(con, "read_files") else "TABLE"
             con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
             rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:

@@ -400,8 +400,8 @@ CASES = [
     Case("unknown_config_key", unknown_key, 2, "did you mean 'margin_rate'"),
     # Analyses on data that cannot answer: a message, never a traceback.
     Case("timing_without_promotions", timing_without_promotions, 0, "not estimable"),
-    Case("campaign_on_broadcast_promotion", campaign_on_broadcast, 2, "has no holdout",
-         absent=("liftlag quarter",)),
+    Case("campaign_on_broadcast_promotion", campaign_on_broadcast, 2, "has no holdout, so there is no campaign "
+         "readout to compute; its effect against a counterfactual is in `liftlag longrun"),
     Case("campaign_unknown_promotion", campaign_unknown_id, 2, "is not in the promotions table"),
     Case("panel_missing_from_workspace", panel_missing_from_workspace, 1, "liftlag build --force"),
     Case("sql_without_config", sql_without_config, 0, "margin_rate = NULL", absent=("None",)),
@@ -466,7 +466,7 @@ def test_read_only_workspace_is_a_message_naming_the_setting(tmp_path, capsys, m
     def refuse(*args, **kwargs):
         raise PermissionError(13, "Permission denied", str(target))
 
-    monkeypatch.setattr(workspace, "atomic_database", refuse)
+    monkeypatch.setattr(workspace, "private_path", refuse)
     code, out = run_cli(check(cfg), capsys)
     assert_no_traceback(out)
     assert code == 2

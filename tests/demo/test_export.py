@@ -86,13 +86,26 @@ def test_coupon_lines_belong_to_treatment_customers_in_the_window(export_all):
     coupon = orders[orders["audience"] == "targeted"]
     arms = export_all.assignments.set_index(["promotion_id", "customer_id"])["arm"]
     assert (arms.reindex(list(zip(coupon["promo_code"], coupon["customer_id"]))) == "T").all()
-    purchase = lines[lines["qty"] > 0].join(promos["depth"], on="promo_code")
-    exact = purchase["depth"].fillna(0.0) * purchase["list_price_total"]
-    assert (purchase["discount"] <= exact + 1e-9).all()  # never deeper than the promotion
-    assert (exact - purchase["discount"] < 0.01).all()  # depth x list, rounded down to the cent
-    returns = lines[lines["qty"] < 0].join(promos["depth"], on="promo_code")
-    assert (returns["discount"] >= returns["depth"].fillna(0.0) * returns["list_price_total"] - 1e-9).all()
-    assert (lines.loc[lines["promo_code"].isna(), "discount"] == 0).all()
+    # The sign-up offer is the one discount without a promotion id: on a new customer's welcome
+    # order (the day they were first seen), inside the offer's span, welcome_offer_depth deep.
+    scenario = export_all.truth["scenario"]
+    first_seen = export_all.customers.set_index("customer_id")["first_seen_at"].dt.normalize()
+    day = lines.groupby("basket_no")["created_at"].transform("min").dt.normalize()  # a return keeps its basket's day
+    discounted = (lines["discount"] > 0).groupby(lines["basket_no"]).transform("any")
+    welcome = (lines["promo_code"].isna() & discounted
+               & (day == lines["shopper_ref"].map(first_seen))
+               & (day >= pd.Timestamp(scenario["welcome_offer_starts_on"]))
+               & (day <= pd.Timestamp(scenario["welcome_offer_ends_on"])))
+    depth = lines.join(promos["depth"], on="promo_code")["depth"]
+    depth = depth.where(~welcome, scenario["welcome_offer_depth"]).fillna(0.0)
+    purchase = lines["qty"] > 0
+    exact = depth * lines["list_price_total"]
+    assert (lines.loc[purchase, "discount"] <= exact[purchase] + 1e-9).all()  # never deeper than the promotion
+    assert (exact[purchase] - lines.loc[purchase, "discount"] < 0.01).all()  # depth x list, rounded down to the cent
+    returns = ~purchase
+    assert (lines.loc[returns, "discount"] >= exact[returns] - 1e-9).all()
+    assert (lines.loc[lines["promo_code"].isna() & ~welcome, "discount"] == 0).all()
+    assert welcome.any()
 
 
 def test_returns_are_negative_lines_netted_in_their_basket(export_all):

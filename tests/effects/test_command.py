@@ -48,6 +48,10 @@ def project(tmp_path, panel_factory, promotion_factory, monkeypatch):
         return con
 
     monkeypatch.setattr("toolkit.workspace.connect", connect)
+    # The hand-made workspace has no export to build from: the command reads it as it is.
+    from toolkit.ensure import Ready
+
+    monkeypatch.setattr("toolkit.ensure.ensure_built", lambda settings, *a, **k: Ready(settings, {}))
     return tmp_path
 
 

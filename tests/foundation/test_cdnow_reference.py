@@ -25,18 +25,7 @@ def cdnow_file():
     return path
 
 
-@pytest.fixture(scope="module")
-def cdnow_workspace(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("cdnow")
-    log = pd.read_csv(cdnow_file(), sep=r"\s+", dtype=str)
-    # The log has no order or product ids: each record is one purchase occasion of CDs.
-    log.insert(0, "record_no", [f"r{i}" for i in range(len(log))])
-    log["item"] = "cd"
-    log.to_csv(folder / "cdnow.csv", index=False)
-    (folder / "promotions.csv").write_text("promotion_id,starts_at,ends_at,mechanic,audience\n")
-    (folder / "assignments.csv").write_text("promotion_id,customer_id,arm,assigned_at\n")
-    (folder / "liftlag.toml").write_text(
-        """
+CDNOW_CONFIG = """
 [tables.transactions]
 path = "cdnow.csv"
 [tables.transactions.columns]
@@ -54,8 +43,24 @@ path = "assignments.csv"
 [economics]
 margin_rate = 0.3
 """
-    )
-    settings = config.load(folder / "liftlag.toml")
+
+
+def write_cdnow_export(folder):
+    """The CDNOW master log as an export of ours (no promotions, no assignments); its config's path."""
+    log = pd.read_csv(cdnow_file(), sep=r"\s+", dtype=str)
+    # The log has no order or product ids: each record is one purchase occasion of CDs.
+    log.insert(0, "record_no", [f"r{i}" for i in range(len(log))])
+    log["item"] = "cd"
+    log.to_csv(folder / "cdnow.csv", index=False)
+    (folder / "promotions.csv").write_text("promotion_id,starts_at,ends_at,mechanic,audience\n")
+    (folder / "assignments.csv").write_text("promotion_id,customer_id,arm,assigned_at\n")
+    (folder / "liftlag.toml").write_text(CDNOW_CONFIG)
+    return folder / "liftlag.toml"
+
+
+@pytest.fixture(scope="module")
+def cdnow_workspace(tmp_path_factory):
+    settings = config.load(write_cdnow_export(tmp_path_factory.mktemp("cdnow")))
     result = panels.build(settings)
     con = duckdb.connect(str(workspace.path(settings, workspace.PANELS)), read_only=True)
     yield result, con

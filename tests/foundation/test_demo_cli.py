@@ -25,3 +25,7 @@ def test_liftlag_demo_runs_end_to_end_from_the_command_line(tmp_path):
     # accepted + rejected = read for every table of the demo export
     assert (summary["accepted"] + summary["rejected"] == summary["rows_read"]).all()
     assert summary.loc["transactions", "rows_read"] > 10_000
+    # the demo ends with its latest complete quarter's promotion health report
+    quarter = manifest["quarter_report"]["quarter"]
+    assert (out / f"quarter-{quarter}" / "report.html").exists()
+    assert json.loads((out / f"quarter-{quarter}" / "manifest.json").read_text())["command"] == "liftlag quarter"

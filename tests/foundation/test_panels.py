@@ -184,3 +184,21 @@ def test_csv_and_parquet_exports_give_identical_panels(tmp_path):
         con.close()
     for name in panels.PANEL_ORDER:
         pd.testing.assert_frame_equal(out["csv"][name], out["parquet"][name], obj=name)
+
+
+def test_customer_quarter_behaviour_matches_hand_computation(built):
+    got = frame(built, "SELECT * FROM customer_quarter_behaviour ORDER BY customer_id, quarter").set_index(
+        ["customer_id", "quarter"])
+    # c1 Q1: purchases o1 (02-02, 2 lines, 3 items, net 30), o2 (03-03, 1 line, net 8, 2 off, depth 0.2),
+    # o3 (03-18, net 9, 1 off, depth 0.1); the return o4 is left out. Weeks of 02-02, 03-02, 03-16.
+    c1 = got.loc[("c1", "2026Q1")]
+    assert (c1["orders"], c1["purchase_days"], c1["purchase_weeks"], c1["active_span_days"]) == (3, 3, 3, 44)
+    assert (c1["lines"], c1["quantity"], c1["net_amount"], c1["list_amount"]) == (4, 5.0, 47.0, 50.0)
+    assert c1["discount_amount"] == 3.0 and c1["deal_orders"] == 2 and c1["max_depth"] == pytest.approx(0.2)
+    # c2 Q1: o5 (02-20, 3 items, 30) and o6 (03-05, two lines, 20), no deal.
+    c2 = got.loc[("c2", "2026Q1")]
+    assert (c2["orders"], c2["purchase_weeks"], c2["active_span_days"], c2["quantity"]) == (2, 2, 13, 5.0)
+    assert c2["deal_orders"] == 0 and c2["max_depth"] == 0.0
+    # c3 Q2: o9 alone (04-06, two lines, list missing on one line: list derived as net + discount = 20).
+    c3 = got.loc[("c3", "2026Q2")]
+    assert (c3["orders"], c3["lines"], c3["net_amount"], c3["list_amount"], c3["active_span_days"]) == (1, 2, 20.0, 20.0, 0)

@@ -199,25 +199,46 @@ def test_messy_export_in_parquet_builds_the_same_panels(spark_session, tmp_path)
     assert_same_tables(both["duckdb"]["panels"], both["spark"]["panels"])
 
 
-TIMING_TABLES = ("timing_purchase_days", "timing_calendar", "timing_customer_changes", "timing_cells",
-                 "timing_gap_counts", "timing_cox_sample")
+def _timing_inputs(con, settings):
+    """The expected-start windows and exposure periods, as ``timing.api.analyse_timing`` makes them."""
+    from toolkit.timing.schedule import CampaignCadence
+    from toolkit.timing.spells import merge_periods
+
+    promotions = con.execute(
+        "SELECT promotion_id, CAST(starts_at AS DATE) AS starts_on, CAST(ends_at AS DATE) AS ends_on, audience "
+        "FROM checked.promotions ORDER BY starts_on, promotion_id").df()
+    export_end = con.execute("SELECT max(ordered_on + days_to_next_order) FROM purchase_gaps").fetchall()[0][0]
+    targeted = promotions[promotions["audience"] == "targeted"]
+    cadence = CampaignCadence().fit(targeted["starts_on"], until=export_end)
+    after = int(settings.windows.after_days)
+    blocked = [(r.starts_on, r.ends_on + pd.Timedelta(days=after), r.promotion_id) for r in promotions.itertuples()]
+    windows = cadence.expected_windows(settings.timing.anticipation_days, blocked)
+    exposure = merge_periods((r.starts_on, r.ends_on + pd.Timedelta(days=max(after, int(settings.timing.dip_days))))
+                             for r in promotions.itertuples())
+    return windows, exposure
 
 
 def test_demo_timing_aggregations_are_the_same_on_duckdb_and_spark(demo_both):
-    """sql/timing on the demo's panels: purchase days (with the customer blocks of the project's
-    hash), calendar, coupon changes, hazard cells, gap counts and the Cox sample."""
+    """Every file of sql/timing on the demo's panels: purchase days (with the customer blocks of
+    the project's hash), calendar, coupon changes, spells, hazard cells, gap counts, the Cox
+    sample, the anticipation windows' exposure and the randomised arms' cells. DuckDB reads the
+    workspace the DuckDB build published, Spark the one the Spark build published."""
     from toolkit.engine.spark import open_workspace
-    from toolkit.timing.spells import SpellOptions, TimingTables
+    from toolkit.timing.spells import ORDER, SpellOptions, TimingTables
 
     duck_settings, spark_settings = demo_both["duckdb"]["settings"], demo_both["spark"]["settings"]
-    promotions = demo_both["duckdb"]["checked"]["promotions"]
-    starts = sorted(pd.to_datetime(promotions.loc[promotions["audience"] == "targeted", "starts_at"]).dt.date)
     options = SpellOptions(sample_customers=300, n_blocks=16)
-    duck = TimingTables(workspace.connect(duck_settings), options, starts)
-    spark = TimingTables(open_workspace(spark_settings), options, starts)
     fetched = {}
-    for name, tables in (("duckdb", duck), ("spark", spark)):
-        fetched[name] = {t: tables.cursor.execute(f"SELECT * FROM {t}").df() for t in TIMING_TABLES}
-    assert len(fetched["duckdb"]["timing_cells"]) > 0
-    assert fetched["duckdb"]["timing_purchase_days"]["block"].nunique() == 16
-    assert_same_tables(fetched["duckdb"], fetched["spark"])
+    for name, con in (("duckdb", workspace.connect(duck_settings)), ("spark", open_workspace(spark_settings))):
+        try:
+            windows, exposure = _timing_inputs(con, duck_settings)
+            tables = TimingTables(con, options, windows, exposure)
+            fetched[name] = {t: tables.cursor.execute(f"SELECT * FROM {t}").df() for t in ORDER}
+            fetched[name]["cox_spells"] = tables.cox_spells()
+        finally:
+            con.close()
+    duck = fetched["duckdb"]
+    assert len(duck["timing_cells"]) > 0 and len(duck["timing_arm_cells"]) > 0
+    assert len(duck["timing_window_exposure"]) > 0 and len(duck["cox_spells"]) > 0
+    assert duck["timing_purchase_days"]["block"].nunique() == 16
+    assert_same_tables(duck, fetched["spark"])

@@ -1,7 +1,7 @@
 """Every SQL file (check rules, panels, sql/timing) is accepted and resolved by Spark's analyser.
 
-Fast: the inputs are empty views of the contract's columns and types, and nothing is executed
-(Spark analyses a query when it is defined). The parity tests (test_parity.py) then run the
+Fast: the inputs are empty views of the contract's columns and types (Spark analyses a query
+when it is defined; a temporary table is then computed, on no rows). The parity tests (test_parity.py) then run the
 files on data.
 """
 
@@ -32,6 +32,9 @@ def con(spark_session):
     for name in ("checked_at", "horizon_earliest", "horizon_latest", "horizon_promotion_latest"):
         con.execute(f"SET VARIABLE {name} = ?", [now])
     con.execute("CREATE OR REPLACE TEMP VIEW accepted_promotions AS SELECT * FROM staged_promotions")
+    # What the rules after the promotions' read (as checks.validate defines them, empty here).
+    con.execute("CREATE OR REPLACE TEMP VIEW rejected_promotions AS SELECT promotion_id, 'rule' AS rule, "
+                "0 AS rule_order, 'detail' AS detail FROM staged_promotions")
     yield con
     con.close()
 
@@ -62,9 +65,11 @@ def test_panels_and_timing_sql_resolve_on_spark(con):
                         ("timing_coupons_cap", 10), ("timing_sample_customers", 100),
                         ("timing_rate_classes", options.rate_classes), ("timing_min_history_days", 28)):
         con.execute(f"SET VARIABLE {name} = ?", [value])
-    con.register("timing_expected_starts", pd.DataFrame({"start_day": [20000]}).astype("int32"))
+    con.register("timing_expected_starts", pd.DataFrame(
+        {"window_no": [1], "start_day": [20000], "window_from_day": [19990], "window_to_day": [19999]}).astype("int32"))
+    con.register("timing_exposure_periods", pd.DataFrame({"from_day": [19000], "to_day": [19010]}).astype("int32"))
     con.register("timing_periods", pd.DataFrame({"period": [0], "period_from": [1], "period_to": [7]}).astype("int32"))
     con.register("timing_period_days", pd.DataFrame({"days_since": [1], "period": [0]}).astype("int32"))
     for name in spells.ORDER:
-        con.execute(spells.sql_text(name))  # CREATE TEMP TABLE / VIEW: defined (analysed), not run
+        con.execute(spells.sql_text(name))  # CREATE TEMP TABLE / VIEW (run on the empty inputs)
         assert con.spark.table(name).columns, name

@@ -50,7 +50,7 @@ def generate(
         Seed of numpy's Generator; the same seed and settings give byte-identical files.
     customers : int, default=4000
         Number of customers.
-    effects : {"all", "uplift_only", "none"}, default="all"
+    effects : {"all", "uplift_only", "none", "stationary", "learning"}, default="all"
         Which mechanisms are on (see :data:`toolkit.demo.scenario.EFFECTS`).
     scenario : Scenario, optional
         Full parameters; overrides ``effects`` when given.
@@ -106,6 +106,7 @@ def generate(
         "campaigns": campaign_truth,
         "broadcasts": broadcast_truth,
         "realised": _realised(population, products, simulation, lines, campaign_truth),
+        "acquisition": _acquisition(scenario, calendar, population, simulation),
     }
     write_truth(out, truth, uplift_table)
     record = _record(seed, customers, truth["effects"], scenario)
@@ -219,11 +220,70 @@ def _mechanisms(scenario: Scenario) -> dict:
             "anticipation_days": scenario.anticipation_days,
             "anticipation_min_coupons": scenario.anticipation_min_coupons,
         },
+        "learning": {
+            "active": scenario.has_learning,
+            "acts_on": (
+                "every day's purchase hazard, times exp(-learning_full_price_per_coupon x min(coupons received before "
+                "the latest campaign start, "
+                "learning_cap)); and each campaign's coupon hazard ratio where above 1, times exp(learning_coupon_per_coupon x "
+                "min(coupons received before it, learning_cap)): customers who have received more coupons buy "
+                "less at full price and respond more to the next coupon, so discount dependence rises"
+            ),
+            "learning_full_price_per_coupon": scenario.learning_full_price_per_coupon,
+            "learning_coupon_per_coupon": scenario.learning_coupon_per_coupon,
+            "learning_cap": scenario.learning_cap,
+        },
         "broadcast": {
             "active": scenario.broadcast_hr != 1.0,
             "acts_on": "every customer's purchase hazard on each day of the sale (no dip follows a sale order)",
             "broadcast_hr": scenario.broadcast_hr,
         },
+    }
+
+
+def _acquisition(scenario: Scenario, calendar, population, simulation) -> dict:
+    """The welcome offer: who was deal-acquired, and how their later purchase rate differs.
+
+    ``rate_ratio`` is the ratio of the mean baseline hazards (deal-acquired / the other welcome
+    orders of the same span): below 1 means the deal-acquired cohort buys less often afterwards.
+    ``cohorts`` splits every customer first seen inside the history who ordered, as the cohort
+    analysis does, by whether the first order was a deal (the welcome offer, a coupon or the
+    sale): their mean baseline hazard and its ratio. Customers whose first order came on its own
+    are those who buy often (a size-biased draw), so that ratio is below 1 even when the offer
+    changes no one (the ``none`` variant): the cohort contrast is descriptive.
+    """
+    first = population.first_day
+    start, end = calendar.day_of(scenario.welcome_offer_starts_on), calendar.day_of(scenario.welcome_offer_ends_on)
+    in_span = population.welcome_order & (first >= start) & (first <= end)
+    deal = population.welcome_deal if population.welcome_deal is not None else np.zeros(len(first), bool)
+    other = in_span & ~deal
+    deal_rate = float(population.base_rate[deal].mean()) if deal.any() else None
+    other_rate = float(population.base_rate[other].mean()) if other.any() else None
+    # The first order of each customer first seen inside the history, and whether it was a deal.
+    first_order = {}
+    for customer, day, promo in zip(simulation.order_customer, simulation.order_day, simulation.order_promotion):
+        if customer not in first_order:  # orders are in day order
+            first_order[customer] = (day, promo)
+    cohort_rate = {}
+    members = np.array(sorted(c for c in first_order if first[c] >= 0), dtype=np.int64)
+    if len(members):
+        first_deal = np.array([first_order[c][1] >= 0 or (deal[c] and first_order[c][0] == first[c]) for c in members])
+        for name, take in (("deal_acquired", first_deal), ("full_price_acquired", ~first_deal)):
+            cohort_rate[name] = {"customers": int(take.sum()),
+                                 "mean_rate": round(float(population.base_rate[members[take]].mean()), 6) if take.any() else None}
+    rates = [cohort_rate.get(k, {}).get("mean_rate") for k in ("deal_acquired", "full_price_acquired")]
+    return {
+        "cohorts": cohort_rate,
+        "cohort_rate_ratio": round(rates[0] / rates[1], 6) if all(rates) else None,
+        "welcome_offer_starts_on": scenario.welcome_offer_starts_on.isoformat(),
+        "welcome_offer_ends_on": scenario.welcome_offer_ends_on.isoformat(),
+        "welcome_offer_depth": scenario.welcome_offer_depth,
+        "rate_factor": scenario.welcome_offer_rate_factor,
+        "deal_acquired_customers": int(deal.sum()),
+        "full_price_acquired_same_span": int(other.sum()),
+        "deal_acquired_mean_rate": None if deal_rate is None else round(deal_rate, 6),
+        "full_price_acquired_mean_rate": None if other_rate is None else round(other_rate, 6),
+        "rate_ratio": None if not (deal_rate and other_rate) else round(deal_rate / other_rate, 6),
     }
 
 

@@ -7,6 +7,10 @@ A customer's chance of ordering on a day is ``1 - exp(-hazard)`` (at most one or
              x anticipation_hr            on anticipation days, if coupons received >= minimum
                                           and no coupon is held
              x post_promotion_dip_hr      for dip_days days after an order placed with a coupon
+             x full_price_learning(coupons received)   customers learn to wait for deals
+
+and a campaign's coupon hazard ratio is multiplied by ``coupon_learning(coupons received before
+it)`` (see ``Scenario.learning_*``).
 """
 
 from __future__ import annotations
@@ -91,3 +95,15 @@ def purchase_hazard(
 def order_probability(hazard: np.ndarray) -> np.ndarray:
     """Chance of at least one order on a day with this hazard: ``1 - exp(-hazard)``."""
     return -np.expm1(-hazard)
+
+
+def full_price_learning(scenario: Scenario, coupons: np.ndarray) -> np.ndarray:
+    """Factor on every day's hazard of a customer who has received ``coupons`` coupons (1 without learning)."""
+    capped = np.minimum(np.asarray(coupons, dtype=float), scenario.learning_cap)
+    return np.exp(-scenario.learning_full_price_per_coupon * capped)
+
+
+def coupon_learning(scenario: Scenario, coupons_before: np.ndarray) -> np.ndarray:
+    """Factor on a coupon's hazard ratio for a customer who received ``coupons_before`` coupons before it."""
+    capped = np.minimum(np.asarray(coupons_before, dtype=float), scenario.learning_cap)
+    return np.exp(scenario.learning_coupon_per_coupon * capped)

@@ -74,7 +74,12 @@ def make_lines(
     depths = np.array([c.depth for c in calendar.campaigns] + [b.depth for b in calendar.broadcasts] + [0.0])
     line_promo = promo[line_order]
     # Rounded down to the cent, so no line is ever deeper than its promotion (index -1 is the 0.0).
-    discount_cents = np.floor(depths[line_promo] * list_cents + 1e-6).astype(np.int64)
+    line_depth = depths[line_promo]
+    if customers.welcome_deal is not None:
+        # The sign-up offer: the welcome order of a deal-acquired customer, with no promotion id.
+        welcome_deal = customers.welcome_deal[cust] & first_day[time_order] & (promo == -1)
+        line_depth = np.where(welcome_deal[line_order], scenario.welcome_offer_depth, line_depth)
+    discount_cents = np.floor(line_depth * list_cents + 1e-6).astype(np.int64)
     start = np.datetime64(scenario.starts_on, "s")
     created = start + (day[line_order] * 86400 + second[line_order]).astype("timedelta64[s]")
 

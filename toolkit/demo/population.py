@@ -31,6 +31,8 @@ class Customers:
     ``first_day`` is the day index (from ``Scenario.starts_on``) of ``first_seen_at``; it is negative
     for customers known before the history starts. ``first_second`` is the second of that day.
     ``base_rate`` is the latent baseline purchase hazard (orders per day) and is not exported.
+    ``welcome_deal`` marks the customers whose welcome order used the sign-up offer (their
+    ``base_rate`` already carries ``welcome_offer_rate_factor``).
     """
 
     customer_id: np.ndarray
@@ -42,6 +44,7 @@ class Customers:
     household_garden: np.ndarray
     base_rate: np.ndarray
     app_share: np.ndarray
+    welcome_deal: np.ndarray | None = None
 
     def __len__(self) -> int:
         return len(self.customer_id)
@@ -81,6 +84,14 @@ def make_customers(scenario: Scenario, count: int, rng: np.random.Generator) -> 
     garden = (rng.random(count) < scenario.household_garden_share).astype(np.int64)
     base_rate = rng.gamma(scenario.base_rate_shape, scenario.base_rate_mean / scenario.base_rate_shape, size=count)
     app_share = np.where(channel == "app", 0.75, 0.3)
+    # Drawn last, so that every earlier draw is the same as before the welcome offer existed.
+    offer_start = (scenario.welcome_offer_starts_on - scenario.starts_on).days
+    offer_end = (scenario.welcome_offer_ends_on - scenario.starts_on).days
+    welcome_deal = (
+        welcome & (first_day >= offer_start) & (first_day <= offer_end)
+        & (rng.random(count) < scenario.welcome_offer_share)
+    )
+    base_rate = np.where(welcome_deal, base_rate * scenario.welcome_offer_rate_factor, base_rate)
     order = np.arange(count)
     customer_id = np.char.add("FW", np.char.zfill((order + 100001).astype(str), 6))
     return Customers(
@@ -93,6 +104,7 @@ def make_customers(scenario: Scenario, count: int, rng: np.random.Generator) -> 
         household_garden=garden,
         base_rate=base_rate,
         app_share=app_share,
+        welcome_deal=welcome_deal,
     )
 
 

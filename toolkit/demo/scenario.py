@@ -15,14 +15,23 @@ from typing import Any
 
 from ..errors import ConfigError
 
-EFFECTS = ("all", "uplift_only", "none")
+EFFECTS = ("all", "uplift_only", "none", "stationary", "learning")
 """The scenario variants.
 
 ``all``: every mechanism on. ``uplift_only``: the coupon and the broadcast sale still raise the
 purchase hazard, but there is no post-promotion dip and no anticipation (a data set on which a
 timing analysis must find nothing). ``none``: no mechanism at all; coupons and the sale change no
-one's behaviour (an A/A data set on which every effect must come out null).
+one's behaviour (an A/A data set on which every effect must come out null). ``stationary``: coupons
+and the sale work as in ``all``, but nothing changes from one year to the next: no learning, no
+new customers, one campaign a quarter on the same dates each year, a coupon response that does
+not depend on the customer's purchase history, no anticipation (a data set on which the long-run
+drift analyses must find nothing). ``learning``: ``all``, and customers learn from the coupons
+they receive: their full-price hazard falls and their response to the next coupon rises, so
+discount dependence rises over the quarters (``LEARNING`` gives the rates).
 """
+
+#: The learning rates of the ``learning`` variant (per coupon received).
+LEARNING = {"learning_full_price_per_coupon": 0.03, "learning_coupon_per_coupon": 0.15}
 
 
 CALENDARS = ("regular", "irregular", "seasonal")
@@ -128,6 +137,27 @@ class Scenario:
         campaign start, for customers who have received at least ``anticipation_min_coupons``
         coupons (treatment assignments of campaigns already started).
     anticipation_days, anticipation_min_coupons : int
+    learning_full_price_per_coupon : float, default=0.0
+        Customers learn to wait for deals: every day's purchase hazard is multiplied by
+        ``exp(-learning_full_price_per_coupon x min(coupons learned, learning_cap))`` (coupons
+        learned: treatment assignments received before the latest campaign start, so a coupon
+        teaches from the next campaign on). 0 switches it off.
+    learning_coupon_per_coupon : float, default=0.0
+        ... and respond more to a coupon: a campaign's coupon hazard ratio, where above 1, is
+        multiplied by ``exp(learning_coupon_per_coupon x min(coupons received before it,
+        learning_cap))`` (sure things and do-not-disturb customers keep theirs).
+    learning_cap : int, default=10
+    welcome_offer_starts_on, welcome_offer_ends_on : datetime.date
+        Days on which a new customer's welcome order may use the sign-up offer (a discount code
+        with no promotion id in the export).
+    welcome_offer_share : float, default=0.8
+        Share of the welcome orders placed in that span that use the offer: those customers are
+        deal-acquired.
+    welcome_offer_depth : float, default=0.15
+        Fraction off the welcome order.
+    welcome_offer_rate_factor : float, default=0.5
+        Factor on a deal-acquired customer's baseline hazard (the offer brings in customers who
+        buy less often afterwards); 1 in the ``none`` variant.
     pre_period_days, after_days : int
         Pre-period used for the recency/frequency features; days after a campaign window over
         which the truth measures pull-forward.
@@ -190,12 +220,20 @@ class Scenario:
     anticipation_hr: float = 0.6
     anticipation_days: int = 7
     anticipation_min_coupons: int = 2
+    learning_full_price_per_coupon: float = 0.0
+    learning_coupon_per_coupon: float = 0.0
+    learning_cap: int = 10
     pre_period_days: int = 365
     after_days: int = 28
     margin_rate: float = 0.38
     campaign_start_offsets: tuple[int, ...] = ()
     pre_start_season_hr: float = 1.0
     pre_start_season_days: int = 7
+    welcome_offer_starts_on: date = date(2025, 4, 1)
+    welcome_offer_ends_on: date = date(2025, 6, 30)
+    welcome_offer_share: float = 0.8
+    welcome_offer_depth: float = 0.15
+    welcome_offer_rate_factor: float = 0.5
 
     @classmethod
     def for_effects(cls, effects: str = "all", **overrides: Any) -> "Scenario":
@@ -203,9 +241,11 @@ class Scenario:
 
         Parameters
         ----------
-        effects : {"all", "uplift_only", "none"}, default="all"
+        effects : {"all", "uplift_only", "none", "stationary", "learning"}, default="all"
             ``uplift_only`` sets the dip and anticipation hazard ratios to 1 and their day counts
-            to 0; ``none`` also sets every coupon and broadcast hazard ratio to 1.
+            to 0 (and switches learning off); ``none`` also sets every coupon and broadcast hazard
+            ratio, and the welcome offer's rate factor, to 1; ``stationary`` and ``learning`` are described in
+            :data:`EFFECTS`.
         **overrides
             Any field of :class:`Scenario`.
 
@@ -222,6 +262,19 @@ class Scenario:
         values: dict[str, Any] = {}
         if effects in ("uplift_only", "none"):
             values.update(post_promotion_dip_hr=1.0, dip_days=0, anticipation_hr=1.0, anticipation_days=0)
+        if effects == "learning":
+            values.update(LEARNING)
+        if effects == "stationary":
+            values.update(
+                existing_share=1.0,                # no new customers: the base does not grow or age
+                cadence_days=91,                   # one campaign a quarter, on about the same dates each year
+                first_campaign_on=date(2025, 2, 3),  # (ending before the broadcast sale)
+                depths=(0.2,),                     # every campaign as deep as the last
+                uplift_recent_infrequent_hr=1.0,   # the coupon response does not depend on the history,
+                sure_thing_min_orders=10**6,       # which the export's start truncates
+                anticipation_hr=1.0,               # anticipation needs coupons received: it would grow
+                anticipation_days=0,
+            )
         if effects == "none":
             values.update(
                 uplift_base_hr=1.0,
@@ -229,6 +282,7 @@ class Scenario:
                 uplift_recent_infrequent_hr=1.0,
                 do_not_disturb_hr=1.0,
                 broadcast_hr=1.0,
+                welcome_offer_rate_factor=1.0,
             )
         values.update(overrides)
         scenario = cls(**values)
@@ -253,15 +307,19 @@ class Scenario:
         if self.ends_on <= self.starts_on:
             raise ConfigError(f"demo scenario: ends_on {self.ends_on} must be after starts_on {self.starts_on}")
         for name in ("existing_share", "welcome_order_share", "household_garden_share", "audience_share",
-                     "holdout_share", "return_line_share"):
+                     "holdout_share", "return_line_share", "welcome_offer_share", "welcome_offer_depth"):
             value = getattr(self, name)
             if not 0.0 <= value <= 1.0:
                 raise ConfigError(f"demo scenario: {name} must be between 0 and 1, found {value!r}")
         for name in ("base_rate_mean", "base_rate_shape", "broadcast_hr", "uplift_base_hr", "uplift_garden_hr",
-                     "uplift_recent_infrequent_hr", "do_not_disturb_hr", "post_promotion_dip_hr", "anticipation_hr"):
+                     "uplift_recent_infrequent_hr", "do_not_disturb_hr", "post_promotion_dip_hr", "anticipation_hr",
+                     "welcome_offer_rate_factor"):
             value = getattr(self, name)
             if not value > 0:
                 raise ConfigError(f"demo scenario: {name} must be positive, found {value!r}")
+        for name in ("learning_full_price_per_coupon", "learning_coupon_per_coupon", "learning_cap"):
+            if getattr(self, name) < 0:
+                raise ConfigError(f"demo scenario: {name} must be 0 or more, found {getattr(self, name)!r}")
         for name in ("dip_days", "anticipation_days", "after_days", "pre_period_days"):
             if getattr(self, name) < 0:
                 raise ConfigError(f"demo scenario: {name} must be 0 or more, found {getattr(self, name)!r}")
@@ -292,6 +350,10 @@ class Scenario:
     @property
     def has_anticipation(self) -> bool:
         return self.anticipation_days > 0 and self.anticipation_hr != 1.0
+
+    @property
+    def has_learning(self) -> bool:
+        return self.learning_full_price_per_coupon > 0 or self.learning_coupon_per_coupon > 0
 
     @property
     def has_uplift(self) -> bool:

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .calendar import Calendar
-from .hazard import coupon_hazard_ratio, order_probability, purchase_hazard
+from .hazard import coupon_hazard_ratio, coupon_learning, full_price_learning, order_probability, purchase_hazard
 from .population import Customers
 from .scenario import Scenario
 
@@ -42,6 +42,7 @@ class BroadcastStart:
     broadcast: int
     dip_until: np.ndarray
     coupons: np.ndarray
+    learned: np.ndarray | None = None  # coupons the full-price learning counts (see simulate)
 
 
 @dataclass(frozen=True)
@@ -75,6 +76,10 @@ def simulate(
 
     dip_until = np.full(n, _NEVER, dtype=np.int64)
     coupons = np.zeros(n, dtype=np.int64)
+    # Coupons the full-price learning counts: those received before the latest campaign start (a
+    # coupon teaches from the next campaign on, so a campaign's own window and after-window show
+    # no learning contrast between its arms).
+    learned = np.zeros(n, dtype=np.int64)
     holding = np.full(n, -1, dtype=np.int64)
     coupon_factor = np.ones(n)
     last_order = np.full(n, _NEVER, dtype=np.int64)
@@ -93,14 +98,18 @@ def simulate(
             k = starts[day]
             start = _start_campaign(scenario, k, day, customers, orders_by_day, last_order, coupons, dip_until, assignment_rng)
             campaign_starts.append(start)
+            learned = coupons.copy()
             treated = start.members[start.treated]
             holding[treated] = k
             coupon_factor[treated] = start.coupon_hr[start.treated]
             coupons[treated] += 1
         if day in broadcast_starts_on:
-            broadcast_starts.append(BroadcastStart(broadcast_starts_on[day], dip_until.copy(), coupons.copy()))
+            broadcast_starts.append(BroadcastStart(broadcast_starts_on[day], dip_until.copy(), coupons.copy(),
+                                                   learned.copy()))
 
         base = rate * (calendar.season[day] * calendar.broadcast_factor[day]) * (first_day <= day)
+        if scenario.has_learning:
+            base = base * full_price_learning(scenario, learned)
         anticipating = calendar.anticipation_day[day] & (coupons >= scenario.anticipation_min_coupons) & (holding < 0)
         hazard = purchase_hazard(base, coupon_factor, anticipating, dip_until >= day, scenario)
         ordered = purchase_rng.random(n) < order_probability(hazard)
@@ -163,6 +172,8 @@ def _start_campaign(
         recency_days=recency,
         frequency=frequency,
     )
+    if scenario.has_learning:  # customers the coupon attracts respond more; sure things and do-not-disturb keep theirs
+        ratio = np.where(ratio > 1.0, ratio * coupon_learning(scenario, coupons[members]), ratio)
     return CampaignStart(
         campaign=campaign,
         members=members,

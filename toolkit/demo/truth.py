@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .calendar import Calendar
-from .hazard import order_probability, purchase_hazard
+from .hazard import full_price_learning, order_probability, purchase_hazard
 from .population import Customers
 from .scenario import Scenario
 from .simulate import BroadcastStart, CampaignStart, Simulation
@@ -118,6 +118,8 @@ def campaign_potential_outcomes(
         & (coupons >= scenario.anticipation_min_coupons)[:, None]
         & ~holding
     )
+    if scenario.has_learning:  # learning counts the coupons before this campaign in both arms (no start in the span)
+        coupon_factor = coupon_factor * full_price_learning(scenario, start.coupons_before)[:, None]
     first_day = customers.first_day[members][:, None]
     result = expected_orders(
         scenario,
@@ -169,6 +171,14 @@ def broadcast_expected_orders(
             holding[np.ix_(treated, days_held)] = True
             coupon_factor[np.ix_(treated, days_held)] = campaign_start.coupon_hr[campaign_start.treated][:, None]
     anticipating = calendar.anticipation_day[day_index][None, :] & (coupons >= scenario.anticipation_min_coupons) & ~holding
+    if scenario.has_learning:
+        # learning counts the coupons received before the latest campaign start (see simulate)
+        learned = np.repeat(start.learned[:, None], span, axis=1)
+        for campaign_start in simulation.campaign_starts:
+            j = calendar.campaigns[campaign_start.campaign].start_day - sale.start_day
+            if 0 < j < span:
+                learned[:, j:] = coupons[:, j - 1][:, None]
+        coupon_factor = coupon_factor * full_price_learning(scenario, learned)
     factor = calendar.season[day_index] * (calendar.broadcast_factor[day_index] if with_sale else 1.0)
     first_day = customers.first_day[:, None]
     result = expected_orders(

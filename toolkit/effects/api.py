@@ -71,8 +71,10 @@ _COLUMNS = {
 
 def _has_table(con, schema: str | None, name: str) -> bool:
     if schema:
-        q = "SELECT count(*) FROM information_schema.tables WHERE table_catalog = ? AND table_name = ?"
-        return con.execute(q, [schema, name]).fetchall()[0][0] > 0
+        # ``checked`` is a schema of the panels database (toolkit.workspace.connect) or an attached one.
+        q = ("SELECT count(*) FROM information_schema.tables WHERE (table_catalog = ? OR table_schema = ?) "
+             "AND table_name = ?")
+        return con.execute(q, [schema, schema, name]).fetchall()[0][0] > 0
     q = "SELECT count(*) FROM information_schema.tables WHERE table_name = ? AND table_catalog = current_database()"
     return con.execute(q, [name]).fetchall()[0][0] > 0
 
@@ -121,16 +123,9 @@ def _promotion(con, promotion_id: str) -> dict:
 
 
 def _broadcast_pointer() -> str:
-    """Where a broadcast sale is analysed, worded from the commands this version really has."""
-    from ..cli import build_parser
-
-    commands = set()
-    for action in build_parser()._actions:
-        commands |= set(getattr(action, "choices", None) or ())
-    if "longrun" in commands:
-        return "its effect against a counterfactual is in `liftlag longrun -c liftlag.toml` (broadcast_effects)"
-    return ("the analysis of broadcast sales against a counterfactual (`liftlag longrun`) is not in this version "
-            "yet; `liftlag --help` lists the commands it has")
+    """Where a broadcast sale is analysed instead."""
+    return ("its effect against a counterfactual is in `liftlag longrun -c liftlag.toml` (table broadcast_effects) "
+            "and in the quarterly report (`liftlag quarter`)")
 
 
 def _both_arms(con, promotion_id: str) -> int:

@@ -8,6 +8,7 @@ from __future__ import annotations
 import time
 from pathlib import Path
 
+from ..ensure import add_arguments as add_workspace_arguments
 from ..errors import AnalysisError, ConfigError
 
 DEFAULT_OUT = "results"
@@ -20,14 +21,16 @@ def register(sub, config_arg) -> None:
     config_arg(p)
     p.add_argument("--all", action="store_true", help="every targeted promotion with assigned customers")
     p.add_argument("--out", default=DEFAULT_OUT, help=f"output folder (default: ./{DEFAULT_OUT})")
+    add_workspace_arguments(p)
     p.set_defaults(handler=run_command)
 
 
 def run_command(args) -> int:
-    from .. import config, workspace
     from rich.markup import escape
 
+    from .. import config
     from ..console import console, err_console
+    from ..ensure import ensure_built
     from .api import analyse_campaign, run_campaigns, write_campaign
 
     if bool(args.promotion_id) == bool(args.all):
@@ -37,6 +40,7 @@ def run_command(args) -> int:
 
     settings = config.load(args.config)
     out = check_out_dir(args.out)
+    ready = ensure_built(settings, console, use_last_good=getattr(args, "use_last_good", None), err_console=err_console)
     if args.all:
         started = time.perf_counter()
         facts = run_campaigns(settings, out, console=console)
@@ -46,11 +50,13 @@ def run_command(args) -> int:
             raise AnalysisError(_nothing_to_read_out(settings, facts))
         console.print(f"{len(facts['campaigns'])} campaigns in {time.perf_counter() - started:.1f} s; results in [bold]{escape(str(out))}[/]")
         return 0
-    con = workspace.connect(settings)
+    con = ready.connect()
     try:
         readout = analyse_campaign(con, settings, args.promotion_id)
     finally:
         con.close()
+    if ready.note:
+        _add_note(readout, ready.note)
     paths = write_campaign(readout, out)
     _print_summary(console, readout)
     for level, message in readout.notes:
@@ -59,6 +65,17 @@ def run_command(args) -> int:
     html = [p for p in paths if p.suffix == ".html"]
     console.print(f"readout: [bold]{escape(str(html[0] if html else out))}[/] (tables beside it)")
     return 0
+
+
+def _add_note(readout, note: str) -> None:
+    """Carry "the last build failed ...; results below are from the build of ..." into the readout."""
+    import pandas as pd
+
+    readout.notes.insert(0, ("warning", note))
+    notes = readout.tables.get("campaign_notes")
+    if notes is not None:
+        row = pd.DataFrame({"promotion_id": [readout.promotion_id], "level": ["warning"], "message": [note]})
+        readout.tables["campaign_notes"] = pd.concat([row, notes], ignore_index=True)[list(notes.columns)]
 
 
 def _nothing_to_read_out(settings, facts: dict) -> str:

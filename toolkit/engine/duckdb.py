@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import socket
 from pathlib import Path
 
 import duckdb
@@ -28,7 +29,9 @@ def connect(settings: Settings | None = None, database: str | Path = ":memory:",
     """Open a DuckDB connection configured from ``[engine]``.
 
     Without a memory limit in the config, half of the machine's memory is used, and work beyond
-    that spills to ``temp_directory`` (default: ``<workspace>/tmp``) instead of failing.
+    that spills to ``temp_directory`` (default: ``<workspace>/tmp``) instead of failing, in a
+    folder of this process's own (``<host>-<pid>``): DuckDB names its spill files alike in every
+    process and removes the folder it made when it closes, so processes must not share one.
     """
     con = duckdb.connect(str(database), read_only=read_only)
     engine = settings.engine if settings is not None else None
@@ -43,7 +46,12 @@ def connect(settings: Settings | None = None, database: str | Path = ":memory:",
     con.execute(f"SET threads = {int(threads)}")
     con.execute("SET memory_limit = ?", [memory])
     if temp is not None:
-        Path(temp).mkdir(parents=True, exist_ok=True)
+        temp = Path(temp) / f"{socket.gethostname()}-{os.getpid()}"
+        try:
+            temp.mkdir(parents=True, exist_ok=True)
+        except OSError:
+            temp = None  # a read-only workspace can still be read; work that would spill then fails
+    if temp is not None:
         con.execute("SET temp_directory = ?", [str(temp)])
     # Row order is never relied on (every table is keyed), so DuckDB may stream and spill freely.
     con.execute("SET preserve_insertion_order = false")

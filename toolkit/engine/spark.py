@@ -7,11 +7,15 @@ timing SQL make (``execute(sql, params)`` with ``.fetchall()`` / ``.df()``, ``re
 serve both engines. What is DuckDB-only in those calls is handled here:
 
 - ``SET VARIABLE name = ?`` keeps the value; ``getvariable('name')`` becomes its literal.
-- ``CREATE [OR REPLACE] TEMP TABLE`` is a cached temporary view (Spark's temporary views cannot be
-  replaced by a query that reads them); ``INSERT INTO t SELECT`` appends by a cached union.
-- ``ATTACH 'x.duckdb' AS out`` / ``CREATE TABLE out.name AS ...`` / ``DETACH out`` write each table as
-  Parquet under ``<workspace>/spark/<x>/<name>/`` and, on DETACH, make ``x.duckdb`` a file of views
-  over those Parquet folders: the analyses open the workspace as they do after a DuckDB build.
+- ``CREATE [OR REPLACE] TEMP TABLE`` is computed once (a local checkpoint: rows kept in memory and on
+  local disk, the plan cut to a scan) and registered as a temporary view; ``INSERT INTO t SELECT``
+  materializes the inserted rows the same way and makes ``t`` the union of its parts.
+- ``ATTACH 'x.duckdb' AS out`` / ``CREATE TABLE out.name AS ...`` / ``DETACH out``: Spark writes each
+  table as Parquet into a staging folder of its own (``<workspace>/spark/<file name of x>/<name>/``),
+  and on DETACH the tables are loaded from that Parquet into ``x.duckdb`` (by DuckDB) and the staging
+  folder is removed. So a Spark build leaves the same self-contained database files as a DuckDB
+  build (the private file that ``panels.build`` publishes by one rename), and the analyses open
+  the workspace as they do after a DuckDB build.
 - The export is read by Spark itself (``read_files``): Parquet (with hive partitions), CSV and
   gzipped CSV, each row keyed by its file's place in the sorted file list and its row in the
   file, as the DuckDB source layer keys it.
@@ -24,6 +28,8 @@ from __future__ import annotations
 
 import os
 import re
+import sys
+import unicodedata
 import shutil
 from pathlib import Path
 
@@ -69,15 +75,26 @@ def session(master: str = "local[*]", conf: dict | None = None):
         raise ConfigError("[engine] kind = \"spark\" needs pyspark: pip install 'liftlag[spark]'") from None
     if _SESSION is not None:
         return _SESSION
-    os.environ.setdefault("PYSPARK_PYTHON", os.environ.get("PYSPARK_PYTHON", "python3"))
+    os.environ.setdefault("PYSPARK_PYTHON", sys.executable)  # Python UDFs run in this interpreter
     builder = SparkSession.builder.master(master).appName("liftlag")
     for key, value in {**DEFAULT_CONF, **(conf or {}), **PINNED_CONF}.items():
         builder = builder.config(key, str(value))
     _SESSION = builder.getOrCreate()
     _SESSION.sparkContext.setLogLevel("ERROR")
+    from pyspark.sql.types import StringType
+
+    # DuckDB's nfc_normalize (the gates compare ids with case and Unicode form set aside).
+    _SESSION.udf.register("liftlag_nfc", _nfc, StringType())
     for key, value in PINNED_CONF.items():
         _SESSION.conf.set(key, value)
     return _SESSION
+
+
+_JAVA_CHARSETS = {"utf-8": "UTF-8", "utf-16": "UTF-16", "latin-1": "ISO-8859-1"}  # config.ENCODINGS
+
+
+def _nfc(text):
+    return None if text is None else unicodedata.normalize("NFC", text)
 
 
 def duckdb_type(spark_type: str) -> str:
@@ -139,6 +156,7 @@ class SparkConnection:
         self._written: dict[str, list[tuple[str, Path]]] = {}
         self._appended: dict[str, list] = {}  # INSERT INTO: the table's first frame, then each insert
         self._parent = None
+        self._read_copy: Path | None = None  # open_workspace: the published tables as Parquet
 
     # -- the DuckDB-like surface ----------------------------------------------------------------
     def cursor(self) -> "SparkConnection":
@@ -162,6 +180,12 @@ class SparkConnection:
             return
         for name in list(self._views):
             self._drop(name)
+        for target in self._attached.values():  # a build that failed before DETACH
+            shutil.rmtree(staging_folder(target), ignore_errors=True)
+        self._attached.clear()
+        if self._read_copy is not None:
+            shutil.rmtree(self._read_copy, ignore_errors=True)
+            self._read_copy = None
 
     def sql(self, text: str):
         """A Spark DataFrame of one DuckDB SELECT (values bound)."""
@@ -175,9 +199,9 @@ class SparkConnection:
         if head.startswith("SET "):
             return _Result(rows=[])  # DuckDB session settings (threads, search_path, ...)
         if head.startswith("ATTACH"):
-            m = re.match(r"ATTACH\s+\?\s+AS\s+(\w+)", stripped, re.I)
+            m = re.match(r"ATTACH\s+\?\s+AS\s+(\w+)$", stripped, re.I)
             if not m:
-                raise ValueError(f"Spark engine: unsupported ATTACH: {stripped[:80]}")
+                raise ValueError(f"Spark engine: unsupported ATTACH (only ATTACH ? AS name): {stripped[:80]}")
             self._attached[m.group(1)] = Path(params[0])
             self._written[m.group(1)] = []
             return _Result(rows=[])
@@ -249,11 +273,9 @@ class SparkConnection:
             return _Result(rows=[])
         self._appended.pop(name, None)
         if kind == "TABLE":
-            frame = frame.cache()  # filled on first use (a count here would cost a job)
-            old = self._cached.pop(name, None)
+            frame = _materialize(frame)
+            self._cached.pop(name, None)
             frame.createOrReplaceTempView(name)
-            if old is not None:
-                old.unpersist()
             self._cached[name] = frame
         else:
             frame.createOrReplaceTempView(name)
@@ -264,11 +286,11 @@ class SparkConnection:
         target = tree.this
         table = target if isinstance(target, exp.Table) else target.find(exp.Table)
         name = table.name
-        new = self.spark.sql(to_spark(self._unqualify(tree.expression), self.variables))
+        new = _materialize(self.spark.sql(to_spark(self._unqualify(tree.expression), self.variables)))
         parts = self._appended.setdefault(name, [self.spark.table(name)])
         parts.append(new.toDF(*parts[0].columns))
-        # One flat union of every part, not a union of unions: no plan grows insert by insert,
-        # and nothing is cached here (the readers of the table are).
+        # One flat union of the materialized parts: each insert's query runs once, and the
+        # table's plan stays a union of scans however many inserts there are.
         combined = parts[0]
         for part in parts[1:]:
             combined = combined.unionByName(part)
@@ -276,32 +298,41 @@ class SparkConnection:
         return _Result(rows=[])
 
     def _write(self, alias: str, name: str, frame) -> None:
-        target = self._attached[alias]
-        folder = parquet_folder(target) / name
+        folder = staging_folder(self._attached[alias]) / name
         if folder.exists():
             shutil.rmtree(folder)
         frame.write.parquet(str(folder))
+        # Later statements of the build read the table by its name (a panel reads earlier ones).
         self.spark.read.parquet(str(folder)).createOrReplaceTempView(name)
         self._views.add(name)
         self._written[alias].append((name, folder))
 
     def _detach(self, alias: str) -> None:
-        """The attached DuckDB file becomes a file of views over the Parquet written under it."""
+        """Load the tables written under ``alias`` from their Parquet into the attached DuckDB file."""
         import duckdb
 
         target = self._attached.pop(alias)
-        con = duckdb.connect(str(target))
+        written = self._written.pop(alias, [])
         try:
-            for name, folder in self._written.pop(alias, []):
-                pattern = str(folder / "*.parquet").replace("'", "''")
-                con.execute(f'CREATE VIEW "{name}" AS SELECT * FROM read_parquet(\'{pattern}\')')
+            con = duckdb.connect(str(target))
+            try:
+                con.execute("SET TimeZone = 'UTC'")
+                if self.settings is not None and self.settings.engine.threads:
+                    con.execute(f"SET threads = {int(self.settings.engine.threads)}")
+                for name, folder in written:
+                    con.execute(f'CREATE TABLE "{name}" AS SELECT * FROM read_parquet(?)', [str(folder / "*.parquet")])
+                con.execute("CHECKPOINT")
+            finally:
+                con.close()
         finally:
-            con.close()
+            for name, _ in written:
+                if name in self._views and name not in self._cached:
+                    self.spark.catalog.dropTempView(name)  # its Parquet goes now
+                    self._views.discard(name)
+            shutil.rmtree(staging_folder(target), ignore_errors=True)
 
     def _drop(self, name: str) -> None:
-        cached = self._cached.pop(name, None)
-        if cached is not None:
-            cached.unpersist()
+        self._cached.pop(name, None)
         self.spark.catalog.dropTempView(name)
         self._views.discard(name)
 
@@ -313,6 +344,17 @@ class SparkConnection:
         return self.spark.createDataFrame([], T.StructType(fields))
 
     # -- reading the export ---------------------------------------------------------------------
+    def _csv_reader(self, table, header: bool):
+        return (self.spark.read.option("header", str(header).lower()).option("inferSchema", "false")
+                .option("sep", table.delimiter or ",").option("quote", '"').option("escape", '"')
+                .option("multiLine", "false").option("mode", "PERMISSIVE")
+                .option("encoding", _JAVA_CHARSETS.get(table.encoding or "utf-8", table.encoding)))
+
+    def header_row(self, table, file: str) -> list[tuple]:
+        """The first line of a CSV file as it is written (its header), as ``[(name, ...)]``."""
+        rows = self._csv_reader(table, header=False).csv(str(Path(file).resolve())).limit(1).collect()
+        return [tuple(rows[0])] if rows else []
+
     def read_files(self, table, files: list[str]) -> str:
         """Register the export files of ``table`` as a view; return the view's name.
 
@@ -337,10 +379,7 @@ class SparkConnection:
             frame = frame.select("*", F.col("_metadata.file_path").alias("_uri"),
                                  F.col("_metadata.row_index").alias("file_row_number"))
         elif table.format == "csv":
-            reader = (spark.read.option("header", str(table.header).lower()).option("inferSchema", "false")
-                      .option("sep", table.delimiter or ",").option("quote", '"').option("escape", '"')
-                      .option("multiLine", "false").option("mode", "PERMISSIVE"))
-            frame = reader.csv(paths)
+            frame = self._csv_reader(table, header=table.header).csv(paths)
             frame = frame.select("*", F.col("_metadata.file_path").alias("_uri"),
                                  F.monotonically_increasing_id().alias("_read_order"))
         else:
@@ -367,10 +406,27 @@ class SparkConnection:
         return view
 
 
-def parquet_folder(database: Path) -> Path:
-    """Where the Parquet behind a workspace database file is written: <workspace>/spark/<stem>/."""
-    stem = database.name.split(".")[0]
-    return database.parent / "spark" / stem
+STAGING = "spark"
+
+
+def _materialize(frame):
+    """The frame computed once and kept (memory, then local disk) with its plan cut to a scan.
+
+    Spark analyses a query's whole plan each time a view is read; the staged export's plan (the
+    typed columns, the original text, the row hash) read by every check rule made the analysis
+    itself the cost (minutes on a small export). A local checkpoint keeps the rows in the
+    executors' block stores and truncates the plan, as a DuckDB temporary table does.
+    """
+    from pyspark import StorageLevel
+
+    return frame.localCheckpoint(eager=True, storageLevel=StorageLevel.MEMORY_AND_DISK)
+
+
+def staging_folder(database: Path) -> Path:
+    """Where Spark writes the tables bound for a database file: ``<its folder>/spark/<its name>/``
+    (the private file's name, so no two processes share one; ``workspace.remove_leftovers``
+    removes those of processes that ended without cleaning up)."""
+    return database.parent / STAGING / database.name
 
 
 def _hive_base(settings, table) -> Path | None:
@@ -391,17 +447,39 @@ def _hive_base(settings, table) -> Path | None:
 
 
 def open_workspace(settings) -> SparkConnection:
-    """A Spark connection on a workspace built by the Spark engine: every checked table and
-    panel as a temporary view of its Parquet (``checked.promotions`` reads ``promotions``)."""
+    """A Spark connection on the published workspace (whichever engine built it): every panel and
+    checked input as a temporary view (``checked.promotions`` reads ``promotions``), for running
+    the analyses' SQL (``sql/timing``) on Spark.
+
+    The tables are copied out of ``panels.duckdb`` as Parquet into a temporary folder (removed by
+    ``close()``); in local mode that is on this machine, on a cluster it must be a folder every
+    executor can read (``TMPDIR``).
+    """
+    import tempfile
+
+    import duckdb
+
     from .. import workspace
 
+    panels_file = workspace.path(settings, workspace.PANELS)
+    if not panels_file.exists():
+        raise DataError(f"no built workspace in {settings.workspace_dir}; run `liftlag build -c {settings.config_path}` first")
     con = SparkConnection(settings)
-    for database in (workspace.CHECKED, workspace.PANELS):
-        folder = parquet_folder(workspace.path(settings, database))
-        if not folder.is_dir():
-            raise DataError(f"no Spark-built tables in {folder}; run `liftlag build -c {settings.config_path}` "
-                            "with [engine] kind = \"spark\" first")
-        for table in sorted(p for p in folder.iterdir() if p.is_dir()):
-            con.spark.read.parquet(str(table)).createOrReplaceTempView(table.name)
-            con._views.add(table.name)
+    con._read_copy = Path(tempfile.mkdtemp(prefix="liftlag-spark-read-"))
+    local = duckdb.connect(str(panels_file), read_only=True)
+    try:
+        tables = local.execute(
+            "SELECT schema_name, table_name FROM duckdb_tables() WHERE schema_name IN ('main', 'checked') "
+            "ORDER BY 1, 2").fetchall()
+        for schema, name in tables:
+            out = con._read_copy / f"{schema}.{name}.parquet"
+            target = str(out).replace("'", "''")
+            local.execute(f"COPY (SELECT * FROM \"{schema}\".\"{name}\") TO '{target}' (FORMAT parquet)")
+            con.spark.read.parquet(str(out)).createOrReplaceTempView(name)
+            con._views.add(name)
+    except BaseException:
+        con.close()
+        raise
+    finally:
+        local.close()
     return con

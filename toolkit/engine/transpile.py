@@ -101,6 +101,10 @@ def spark_rewrites(tree: exp.Expression) -> exp.Expression:
       ``CAST('0x' || substr(md5(text), 1, 15) AS BIGINT)``) -> ``CAST(conv(h, 16, 10) AS BIGINT)``
     - ``regexp_full_match(x, p)`` -> ``x RLIKE '^(?:p)$'``
     - ``UBIGINT`` -> ``BIGINT`` (Spark has no unsigned types; only DuckDB's hash() returns one)
+    - ``approx_quantile(x, q)`` -> ``percentile_approx(x, q)`` (approximate on both engines, by
+      different algorithms; it also takes timestamps)
+    - ``nfc_normalize(x)`` -> ``liftlag_nfc(x)``, a Python UDF the Spark engine registers (Spark has no
+      Unicode normalisation function)
     """
     def replace(node: exp.Expression) -> exp.Expression:
         if isinstance(node, exp.Anonymous):
@@ -113,6 +117,11 @@ def spark_rewrites(tree: exp.Expression) -> exp.Expression:
             return exp.RegexpLike(this=node.this, expression=exp.Literal.string(f"^(?:{node.expression.this})$"))
         if isinstance(node, exp.DataType) and node.this == exp.DataType.Type.UBIGINT:
             return exp.DataType.build("BIGINT")  # Spark has no unsigned types
+        if isinstance(node, exp.Anonymous) and str(node.this).lower() == "nfc_normalize":
+            return exp.Anonymous(this="liftlag_nfc", expressions=node.expressions)  # a UDF of the session
+        if isinstance(node, exp.ApproxQuantile):
+            # Approximate on both engines (by different algorithms): only for thresholds with a margin.
+            return exp.Anonymous(this="PERCENTILE_APPROX", expressions=[node.this, _folded(node.args["quantile"])])
         if isinstance(node, (exp.PercentileCont, exp.Quantile)) or (
                 isinstance(node, exp.Anonymous) and str(node.this).lower() == "quantile_cont"):
             value = node.this if not isinstance(node, exp.Anonymous) else node.expressions[0]

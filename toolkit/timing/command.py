@@ -9,6 +9,8 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
+from ..ensure import add_arguments as add_workspace_arguments
+
 DEFAULT_OUT = "results"
 
 
@@ -22,25 +24,30 @@ def register(sub, config_arg) -> None:
     p.add_argument("--out", default=DEFAULT_OUT, help=f"output folder (default: ./{DEFAULT_OUT})")
     p.add_argument("--no-cox", action="store_true",
                    help="fit only the discrete-time model (skips the Cox model on the customer sample)")
+    add_workspace_arguments(p)
     p.set_defaults(handler=run_command)
 
 
 def run_command(args) -> int:
-    from .. import config, workspace
     from rich.markup import escape
 
+    from .. import config
     from ..console import console, err_console
+    from ..ensure import ensure_built
     from .api import analyse_timing, options_from, write_timing
 
     from ..results import check_out_dir
 
     settings = config.load(args.config)
     check_out_dir(args.out)
-    con = workspace.connect(settings)
+    ready = ensure_built(settings, console, use_last_good=getattr(args, "use_last_good", None), err_console=err_console)
+    con = ready.connect()
     try:
         readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
     finally:
         con.close()
+    if ready.note:
+        readout.notes.insert(0, ready.note)
     out = Path(args.out)
     write_timing(readout, out)
     _print_summary(console, readout)
