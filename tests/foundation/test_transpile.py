@@ -64,6 +64,11 @@ def test_spark_rewrites_carry_over_what_sqlglot_does_not():
     assert "CAST(CONV(SUBSTRING(MD5(" in out and ", 16, 10) AS BIGINT)" in out
     assert "b RLIKE '^(?:[0-9]+)$'" in out
     assert "CAST(NULL AS BIGINT)" in out and "GETVARIABLE" not in out.upper()
+    more = to_spark("SELECT approx_quantile(ordered_at, 0.01) AS low, lower(nfc_normalize(c)) AS k, "
+                    "CAST(TRY_CAST(a AS TIMESTAMPTZ) AS TIMESTAMP) AS at FROM t")
+    assert "PERCENTILE_APPROX(ordered_at, 0.01)" in more  # takes timestamps, as DuckDB's approx_quantile
+    assert "LIFTLAG_NFC(c)" in more  # the Spark engine's UDF
+    assert "CAST(TRY_CAST(a AS TIMESTAMP_LTZ) AS TIMESTAMP_NTZ)" in more  # an offset is honoured
 
 
 def test_the_projects_hash_is_the_first_60_bits_of_md5_in_duckdb():

@@ -39,4 +39,5 @@ def spark_session():
         pytest.skip(f"{missing}; set CI to make this a failure")
     from toolkit.engine import spark
 
-    return spark.session("local[2]", {"spark.sql.shuffle.partitions": "4", "spark.driver.memory": "1g"})
+    return spark.session("local[2]", {"spark.sql.shuffle.partitions": "2", "spark.default.parallelism": "2",
+                                      "spark.driver.memory": "1g"})

@@ -100,6 +100,7 @@ def spark_rewrites(tree: exp.Expression) -> exp.Expression:
     - ``CAST('0x' || h AS BIGINT)`` (hex text to a number, as in the project's hash
       ``CAST('0x' || substr(md5(text), 1, 15) AS BIGINT)``) -> ``CAST(conv(h, 16, 10) AS BIGINT)``
     - ``regexp_full_match(x, p)`` -> ``x RLIKE '^(?:p)$'``
+    - ``TIMESTAMPTZ`` -> ``TIMESTAMP_LTZ`` (the session's ``TIMESTAMP`` is zone-less)
     - ``UBIGINT`` -> ``BIGINT`` (Spark has no unsigned types; only DuckDB's hash() returns one)
     - ``approx_quantile(x, q)`` -> ``percentile_approx(x, q)`` (approximate on both engines, by
       different algorithms; it also takes timestamps)
@@ -115,6 +116,10 @@ def spark_rewrites(tree: exp.Expression) -> exp.Expression:
                 return exp.Anonymous(this="TRY_TO_TIMESTAMP", expressions=[args[0], fmt])
         if isinstance(node, exp.RegexpFullMatch) and isinstance(node.expression, exp.Literal):
             return exp.RegexpLike(this=node.this, expression=exp.Literal.string(f"^(?:{node.expression.this})$"))
+        if isinstance(node, exp.DataType) and node.this == exp.DataType.Type.TIMESTAMPTZ:
+            # Spark's TIMESTAMP is zone-less in this session (TIMESTAMP_NTZ): a time with an offset
+            # is read as an instant (TIMESTAMP_LTZ), as DuckDB's TIMESTAMPTZ, then shown in UTC.
+            return exp.DataType(this=exp.DataType.Type.TIMESTAMPLTZ)
         if isinstance(node, exp.DataType) and node.this == exp.DataType.Type.UBIGINT:
             return exp.DataType.build("BIGINT")  # Spark has no unsigned types
         if isinstance(node, exp.Anonymous) and str(node.this).lower() == "nfc_normalize":
