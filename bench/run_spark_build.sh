@@ -7,9 +7,9 @@
 # The export's liftlag.toml is copied with [engine] kind = "spark", master = "local[THREADS]"
 # (default 2) and a fresh workspace under /tmp. Prints the 1-minute load average before the run,
 # the session start-up (the engine logs it apart: "Spark session (...) started in N s"), wall
-# seconds, CPU seconds (user + sys, this process and its children: the JVM included) and peak RSS
-# (the largest single process: /usr/bin/time -v reports the maximum over the process tree's
-# members, not their sum). Wall times taken under load are upper bounds.
+# seconds, and the CPU seconds and peak RSS that /usr/bin/time -v reports: those cover the Python
+# driver only (the JVM is not waited for as its child), not the build's total. Wall times taken
+# under load are upper bounds.
 #
 # Environment: LIFTLAG (default: liftlag beside this repository's .venv python).
 set -euo pipefail
