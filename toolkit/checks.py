@@ -21,7 +21,7 @@ import pandas as pd
 from . import gates, sources, sqlfiles, workspace
 from .config import Settings
 from .contract import ARMS, AUDIENCES, INPUT_TABLES, MECHANICS
-from .engine.duckdb import connect as engine_connect
+from .engine import open_engine
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
 from .errors import DataError
@@ -155,13 +155,14 @@ def _typed_attribute(con, table: str, column: str) -> str:
     TIMESTAMP; anything else stays text. (0/1 stays a number: it may be a count.)
     """
     col = q(column)
-    if scalar(con, f"SELECT typeof({col}) FROM {q('staged_' + table)} LIMIT 1") != "VARCHAR":
+    types = dict((r[0], r[1]) for r in con.execute(f"DESCRIBE {q('staged_' + table)}").fetchall())
+    if types.get(column) != "VARCHAR":
         return col
     value = f"NULLIF(trim({col}), '')"
     tests = (
         ("BOOLEAN", f"lower({value}) IN ('true', 'false')"),
         ("BIGINT", f"regexp_full_match({value}, '[+-]?[0-9]+') AND TRY_CAST({value} AS BIGINT) IS NOT NULL"),
-        ("DOUBLE", f"isfinite(TRY_CAST({value} AS DOUBLE))"),
+        ("DOUBLE", f"abs(TRY_CAST({value} AS DOUBLE)) < CAST('Infinity' AS DOUBLE)"),
         ("TIMESTAMP", f"TRY_CAST({value} AS TIMESTAMP) IS NOT NULL"),
     )
     for target, fits in tests:
@@ -204,7 +205,7 @@ def run(settings: Settings, progress=None, *, notify=None, watcher=None) -> Chec
 
     with hold(settings.workspace_dir, wait=settings.workspace.lock_wait_seconds, notify=notify):
         workspace.remove_leftovers(settings)
-        con = engine_connect(settings)
+        con = open_engine(settings)
         timings = Timings(_Both(TextWatcher(progress) if progress else None, watcher))
         try:
             result = validate(con, settings, timings=timings)
@@ -270,7 +271,7 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
     con.execute("SET VARIABLE horizon_latest = ?", [_shifted(now, horizon.future_days)])
     con.execute("SET VARIABLE horizon_promotion_latest = ?", [_shifted(now, horizon.promotion_future_days)])
     con.execute(
-        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id HUGEINT, rule VARCHAR, "
+        "CREATE OR REPLACE TEMP TABLE check_hits (table_name VARCHAR, _row_id BIGINT, rule VARCHAR, "
         "severity VARCHAR, rule_order INTEGER, detail VARCHAR)"
     )
     promotions_ready = False
@@ -358,6 +359,8 @@ META_TABLE = "meta.check"
 
 def _write_meta(con, result: CheckResult) -> None:
     """``meta.check`` in the checked file: what a later build needs to reuse this check."""
+    if not isinstance(con, duckdb.DuckDBPyConnection):
+        return  # the Spark engine checks again at every build (no reuse there)
     examples = result.examples if result.examples is not None else pd.DataFrame()
     meta = {"fingerprint": result.fingerprint, "checked_at": result.checked_at, "usable": result.usable,
             "problems": result.problems, "examples": {"columns": list(examples.columns),

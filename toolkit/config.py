@@ -124,6 +124,7 @@ class LongrunSettings:
 CHOICES = {
     "timing.dip_after": ("targeted", "any"),
     "timing.expected_starts": ("cadence", "observed"),
+    "engine.kind": ("duckdb", "spark"),
     "workspace.on_failed_build": ("refuse", "use_last_good"),
 }
 
@@ -176,6 +177,9 @@ class EngineSettings:
     threads: int | None = None
     memory_limit: str | None = None
     temp_directory: Path | None = None
+    kind: str = "duckdb"  # "spark": check and build run on a SparkSession (pip install 'liftlag[spark]')
+    master: str = "local[*]"  # Spark master URL (kind = "spark")
+    spark_conf: dict[str, str] = field(default_factory=dict)  # [engine.spark_conf]: any Spark setting
 
 
 @dataclass(frozen=True)
@@ -368,6 +372,9 @@ def _parse_section(path: Path, name: str, body: Any):
                      "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
                      "max_outlying_date_share"):
             kwargs[key] = _share(path, full, value)
+        elif key == "spark_conf":
+            _expect(path, full, value, dict, "a table of Spark settings, e.g. \"spark.driver.memory\" = \"4g\"")
+            kwargs[key] = _flat_conf(value)
         elif key == "exclude_features":
             _expect(path, full, value, list, "a list of column names, e.g. [\"region\"]")
             for item in value:
@@ -386,6 +393,18 @@ def _parse_section(path: Path, name: str, body: Any):
         else:
             kwargs[key] = _expect(path, full, value, str, "text")
     return cls(**kwargs)
+
+
+def _flat_conf(value: dict, prefix: str = "") -> dict[str, str]:
+    """Spark settings as flat "a.b.c" = "text" (an unquoted dotted TOML key arrives nested)."""
+    out: dict[str, str] = {}
+    for k, v in value.items():
+        key = f"{prefix}{k}"
+        if isinstance(v, dict):
+            out.update(_flat_conf(v, key + "."))
+        else:
+            out[key] = str(v).lower() if isinstance(v, bool) else str(v)
+    return out
 
 
 def _share(path: Path, key: str, value: Any) -> float:

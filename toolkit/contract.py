@@ -138,7 +138,7 @@ PANELS: dict[str, tuple[Column, ...]] = {
         Column("cost_amount", "DOUBLE", description="unit_cost x quantity, or list x (1 - margin_rate)"),
         Column("margin_amount", "DOUBLE", description="net_amount - cost_amount: margin after discount"),
         Column("is_deal", "BOOLEAN", description="any line carried a promotion or a discount"),
-        Column("is_return", "BOOLEAN", description="net_amount < 0: the order is mostly a return"),
+        Column("is_return", "BOOLEAN", description="net_amount below -0.005 (half a cent): the order is mostly a return"),
         Column("promotion_id", "VARCHAR", description="the promotion the order carried (the first id in sort order if several)"),
         Column("depth", "DOUBLE", description="discount_amount / list_amount (0 when no discount)"),
     ),

@@ -160,8 +160,8 @@ def _order_dates(con, lines: tuple, margin_days: int, max_share: float) -> list[
         return []
     outlying = con.execute(
         "SELECT count(*), min(ordered_at), max(ordered_at) FROM accepted_transactions "
-        "WHERE ordered_at < ?::TIMESTAMP - to_days(?) OR ordered_at > ?::TIMESTAMP + to_days(?)",
-        [low, margin_days, high, margin_days],
+        "WHERE ordered_at < ? OR ordered_at > ?",
+        [low - margin, high + margin],
     ).fetchall()[0]
     n, first, last = outlying
     if not n or n / total <= max_share:

@@ -21,6 +21,7 @@ import duckdb
 from . import checks, freshness, sqlfiles, workspace
 from .config import Settings
 from .contract import INPUT_TABLES, PANELS
+from .engine import open_engine
 from .engine.duckdb import connect as engine_connect
 from .engine.duckdb import quote_ident as q
 from .engine.duckdb import scalar
@@ -195,11 +196,13 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     result = BuildResult(skipped=False, fingerprint=fp)
     check_fp = freshness.check_fingerprint(record)
     checked_published = workspace.path(settings, workspace.CHECKED)
-    reuse = None if force else checks.reusable(settings, check_fp)
+    # A check is reused on DuckDB only (the Spark engine checks again: its reuse path is not built).
+    spark = getattr(settings.engine, "kind", "duckdb") == "spark"
+    reuse = None if force or spark else checks.reusable(settings, check_fp)
     checked_private = None if reuse else workspace.private_path(settings, workspace.CHECKED)
     panels_private = workspace.private_path(settings, workspace.PANELS)
     checked_done = False
-    con = engine_connect(settings)
+    con = open_engine(settings)
     try:
         if reuse:
             result.check = checks.reuse(con, settings, reuse, timings=timings)
@@ -224,19 +227,12 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
                 con.execute(f"CREATE TABLE out.main.{q(name)} AS {panel_sql(name)}")
                 result.rows[name] = step.rows = int(scalar(con, f"SELECT count(*) FROM out.main.{q(name)}"))
             result.seconds[name] = step.seconds
-        with timings.step("publish checked inputs and build record"):
-            con.execute("SET search_path = 'memory.main'")
-            # The checked inputs travel with the panels, so that a reader sees one build, whole.
-            source = checked_private if checked_private is not None else checked_published
-            if result.check.reused_from is not None:
-                con.execute("DETACH chk")  # attached by checks.reuse
-            con.execute("ATTACH ? AS chk (READ_ONLY)", [str(source)])
-            con.execute("CREATE SCHEMA out.checked")
-            for (table,) in con.execute(
-                    "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' AND schema_name = 'main' "
-                    "ORDER BY 1").fetchall():
-                con.execute(f"CREATE TABLE out.checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
-            con.execute("DETACH chk")
+        con.execute("SET search_path = 'memory.main'")
+        if result.check.reused_from is not None:
+            con.execute("DETACH chk")  # attached by checks.reuse
+        con.execute("DETACH out")
+        # The checked inputs travel with the panels, so that a reader sees one build, whole.
+        source = checked_private if checked_private is not None else checked_published
         result.steps = timings.records()
         build = {
             "fingerprint": fp,
@@ -252,10 +248,9 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
             "version": record["version"],
             "record": record,
         }
-        con.execute("CREATE SCHEMA out.meta")
-        con.execute(f"CREATE TABLE out.{workspace.META_TABLE} (fingerprint VARCHAR, record VARCHAR)")
-        con.execute(f"INSERT INTO out.{workspace.META_TABLE} VALUES (?, ?)", [fp, json.dumps(build, default=str)])
-        con.execute("DETACH out")  # checkpoints: the file is complete, with no write-ahead log
+        with timings.step("publish checked inputs and build record"):
+            _seal(settings, panels_private, source, build)
+        build["steps"] = result.steps = timings.records()
     except BaseException:
         con.close()
         workspace.discard(panels_private)
@@ -282,6 +277,27 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         "fingerprint", "check_fingerprint", "started_at", "finished_at", "seconds", "rows", "steps",
         "check_reused_from", "command", "version")})
     return result
+
+
+def _seal(settings: Settings, panels_private: Path, checked_private: Path, build: dict) -> None:
+    """Put the checked inputs (schema ``checked``) and the build record (``meta.build``) into the
+    private panels file, so that a reader sees one build, whole. Plain DuckDB on the two private
+    files, whichever engine built them."""
+    con = engine_connect(settings, panels_private)
+    try:
+        con.execute("ATTACH ? AS chk (READ_ONLY)", [str(checked_private)])
+        con.execute("CREATE SCHEMA checked")
+        for (table,) in con.execute(
+                "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' ORDER BY 1").fetchall():
+            con.execute(f"CREATE TABLE checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
+        con.execute("DETACH chk")
+        con.execute("CREATE SCHEMA meta")
+        con.execute(f"CREATE TABLE {workspace.META_TABLE} (fingerprint VARCHAR, record VARCHAR)")
+        con.execute(f"INSERT INTO {workspace.META_TABLE} VALUES (?, ?)",
+                    [build["fingerprint"], json.dumps(build, default=str)])
+        con.execute("CHECKPOINT")  # the file is complete, with no write-ahead log
+    finally:
+        con.close()
 
 
 def sql_files() -> list[Path]:

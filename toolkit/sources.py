@@ -32,7 +32,7 @@ from .errors import ConfigError, DataError, DataWarning
 from .failures import duckdb_cause
 
 # Columns the reader adds; never the export's own.
-READER_COLUMNS = ("_source_file", "file_row_number")
+READER_COLUMNS = ("_source_file", "file_row_number", "file_index")  # file_index: the Spark reader's own
 
 
 @dataclass(frozen=True)
@@ -77,6 +77,8 @@ def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
 
 def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[str]) -> str:
     """A FROM clause reading the files; the file list is bound through a DuckDB variable."""
+    if hasattr(con, "read_files"):  # the Spark engine reads the export itself
+        return con.read_files(table, files)
     var = f"liftlag_files_{table.name}"
     con.execute(f"SET VARIABLE {var} = ?", [files])
     files_expr = f"getvariable('{var}')"
@@ -139,13 +141,16 @@ def _duplicate_header(con, table: TableSettings, contract: InputTable, reader: s
     """A CSV header naming one column twice: an error when it is a contract column, else a warning."""
     if table.format != "csv" or not table.header:
         return
-    opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
-    opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
-    con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
-    try:
-        row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
-    except duckdb.Error:
-        return  # the full read reports the cause
+    if hasattr(con, "header_row"):  # the Spark engine reads the files itself
+        row = con.header_row(table, files[0])
+    else:
+        opts = reader.replace("header = true", "header = false").replace(", union_by_name = true", "")
+        opts = opts.replace("getvariable('liftlag_files_" + table.name + "')", "getvariable('liftlag_first_file')")
+        con.execute("SET VARIABLE liftlag_first_file = ?", [files[0]])
+        try:
+            row = con.execute(f"SELECT * EXCLUDE (_source_file) FROM {opts} LIMIT 1").fetchall()
+        except duckdb.Error:
+            return  # the full read reports the cause
     if not row:
         return
     names = [str(v).strip() for v in row[0] if v is not None]
@@ -267,7 +272,7 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
         typed = f"CAST(TRY_CAST({raw} AS TIMESTAMPTZ) AS TIMESTAMP)" if raw_is_text else f"TRY_CAST({raw} AS TIMESTAMP)"
     elif column_type == "DOUBLE":
         # NaN and infinity parse as numbers but are no amount: they count as unparseable.
-        typed = f"CASE WHEN isfinite(TRY_CAST({raw} AS DOUBLE)) THEN TRY_CAST({raw} AS DOUBLE) END"
+        typed = f"CASE WHEN abs(TRY_CAST({raw} AS DOUBLE)) < CAST('Infinity' AS DOUBLE) THEN TRY_CAST({raw} AS DOUBLE) END"
     else:
         typed = f"TRY_CAST({raw} AS {column_type})"
     return f"CASE WHEN {blank} THEN NULL ELSE {typed} END", text
@@ -276,7 +281,7 @@ def _typed_expression(table: TableSettings, column_name: str, column_type: str, 
 def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     cols = ", ".join(f"CAST(NULL AS {c.type}) AS {q(c.name)}" for c in contract.columns)
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS HUGEINT) AS _row_id, "
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT CAST(NULL AS BIGINT) AS _row_id, "
         f"CAST(NULL AS BIGINT) AS _file_row, "
         f"CAST(NULL AS VARCHAR) AS _source_file, {cols}, '' AS _missing, '' AS _unparseable, '' AS _unparseable_optional, "
         f"CAST(NULL AS UBIGINT) AS _row_hash, CAST(NULL AS VARCHAR) AS _raw_values WHERE false"
@@ -318,12 +323,14 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, 
         # of millions of rows); its rows are keyed by file and row number. CSV and DuckDB tables
         # are read once into a temporary table, keyed by its row number; rows keep file order,
         # so row numbers in the rejects (and "the first copy") are the files'.
-        lazy = table.format == "parquet"
+        lazy = table.format == "parquet" or hasattr(con, "read_files")  # Spark keys every read by file and row
         con.execute("SET preserve_insertion_order = true")
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
             select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy)
-            kind = "VIEW" if lazy else "TABLE"
+            # On Spark every stage is a table (computed once, its plan cut short): a view's plan is
+            # analysed again by every rule that reads it.
+            kind = "VIEW" if table.format == "parquet" and not hasattr(con, "read_files") else "TABLE"
             con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
             rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
         except duckdb.Error as exc:
@@ -379,7 +386,9 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
     unparseable = _values_where(unparseable_parts)  # the value as written, so the reason shows it
     unparseable_optional = _values_where(optional_parts)
     raw_struct = f"CAST(struct_pack({', '.join(raw_texts)}) AS VARCHAR)"
-    key = ("(CAST(hash(_source_file) AS HUGEINT) * 1099511627776 + file_row_number) AS _row_key, "
+    # The row key: the file's place in the sorted file list, then the row in the file; the
+    # same numbers on every engine, so "the first copy" is the same row everywhere.
+    key = ("(CAST(file_index AS BIGINT) * 1099511627776 + file_row_number) AS _row_key, "
            "file_row_number + 1 AS _file_row, ") if lazy else ""
     read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
@@ -425,7 +434,7 @@ def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool
     names = [c.name for c in contract.columns] + list(extras)
     cols = ", ".join(q(n) for n in names)
     as_text = f"CAST(struct_pack({', '.join(f'{q(n)} := {q(n)}' for n in names)}) AS VARCHAR)"
-    keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS HUGEINT) AS _row_id, rowid + 1 AS _file_row"
+    keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS BIGINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
         f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
         f"_source_file, {cols}, _missing, _unparseable, _unparseable_optional, _row_hash, "

@@ -13,6 +13,8 @@ Layout (``[workspace] path``, default ``.liftlag`` beside the config)::
                       each check rule, each panel, writing) its seconds and rows (toolkit.steps)
     build.lock        the writers' lock, and build.lock.json: who holds it (toolkit.lock)
     tmp/<host>-<pid>  DuckDB's spill folder of each process (unless [engine] temp_directory)
+    spark/<private>   the Spark engine's Parquet on its way into a private file ([engine] kind =
+                      "spark"; removed when loaded, or as a leftover of a process that ended)
 
 Writers (``build``, ``check``) hold the lock and write to private files named
 ``<file>.<host>-<pid>-<token>.partial``, moved into place with one ``os.replace`` when complete;
@@ -159,6 +161,11 @@ def remove_leftovers(settings: Settings) -> list[str]:
         if f".{mine}-" not in p.name and f".{mine}." not in p.name:
             p.unlink(missing_ok=True)
             removed.append(p.name)
+    # The Spark engine's staging folders are named after the private files they are bound for.
+    for p in (ws / "spark").glob("*.partial") if (ws / "spark").is_dir() else ():
+        if f".{mine}-" not in p.name:
+            shutil.rmtree(p, ignore_errors=True)
+            removed.append(f"spark/{p.name}")
     host = socket.gethostname()
     tmp = ws / "tmp"
     if tmp.is_dir():

@@ -39,7 +39,9 @@ assigned AS (
 SELECT
     promotion_id,
     CAST(is_treated AS INTEGER) AS is_treated,
-    CAST(hash(customer_id, getvariable('timing_seed')) % getvariable('timing_n_blocks') AS INTEGER) AS block,
+    -- The project's hash (the first 60 bits of MD5, the same on every engine), as in timing_purchase_days.
+    CAST(CAST('0x' || substr(md5(customer_id || ':' || CAST(getvariable('timing_seed') AS VARCHAR)), 1, 15) AS BIGINT)
+         % getvariable('timing_n_blocks') AS INTEGER) AS block,
     CAST(count(*) AS BIGINT) AS customers,
     CAST(sum(during_orders) AS BIGINT) AS during_orders,
     CAST(sum(during_days) AS BIGINT) AS during_days,

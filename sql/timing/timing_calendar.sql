@@ -15,7 +15,7 @@ WITH span AS (
 
 days AS (
     SELECT CAST(t.day_no AS INTEGER) AS day_no
-    FROM span, range(span.first_day, span.last_day + 1) AS t(day_no)
+    FROM (SELECT unnest(range(first_day, last_day + 1)) AS day_no FROM span) AS t
 ),
 
 broadcasts AS (

@@ -33,7 +33,8 @@ ranked AS (
         *,
         row_number() OVER (
             PARTITION BY coupon_tier, has_redeemed
-            ORDER BY hash(customer_id, getvariable('timing_seed') + 1), customer_id
+            ORDER BY CAST('0x' || substr(md5(customer_id || ':' || CAST(getvariable('timing_seed') + 1 AS VARCHAR)), 1, 15) AS BIGINT),
+                     customer_id
         ) AS draw_order,
         count(*) OVER (PARTITION BY coupon_tier, has_redeemed) AS stratum_size,
         count(*) OVER () AS population

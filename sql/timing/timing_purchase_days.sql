@@ -112,9 +112,11 @@ SELECT
     r.is_redemption,
     r.promotion_id,
     r.last_redemption_day,
-    CAST(hash(r.customer_id, getvariable('timing_seed')) % getvariable('timing_n_blocks') AS INTEGER) AS block,
+    -- The project's hash (the first 60 bits of MD5, the same on every engine), not an engine's own.
+    CAST(CAST('0x' || substr(md5(r.customer_id || ':' || CAST(getvariable('timing_seed') AS VARCHAR)), 1, 15) AS BIGINT)
+         % getvariable('timing_n_blocks') AS INTEGER) AS block,
     CAST(CASE WHEN r.purchase_rate IS NULL THEN 0
-              ELSE 1 + len(list_filter(coalesce(e.rate_edges, []), lambda edge: edge < r.purchase_rate)) END
+              ELSE 1 + array_length(list_filter(coalesce(e.rate_edges, []), lambda edge: edge < r.purchase_rate)) END
          AS INTEGER) AS rate_class
 FROM frozen AS r
 CROSS JOIN edges AS e

@@ -51,3 +51,16 @@ def test_the_built_wheel_holds_every_sql_file_and_template(tmp_path):
     assert "toolkit/cli.py" in names and "toolkit/sqlfiles.py" in names
     # The clone's top-level sql/ is mapped into the package, not shipped beside it.
     assert not any(n.startswith("sql/") for n in names)
+
+
+def test_ci_runs_the_readmes_test_command_word_for_word():
+    """.ci/run ends with the README quick start's test command, and CI's extras bring pyspark."""
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    commands = [line for line in readme.splitlines() if line.startswith("python3 -m venv") and "pytest" in line]
+    assert len(commands) == 1, commands
+    ci_lines = [line for line in (ROOT / ".ci" / "run").read_text(encoding="utf-8").splitlines() if line.strip()]
+    assert ci_lines[-1] == commands[0]
+    import tomllib
+
+    extras = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["project"]["optional-dependencies"]
+    assert any(dep.startswith("pyspark") for dep in extras["test"])  # the Spark tests run in CI

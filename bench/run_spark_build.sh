@@ -1,0 +1,41 @@
+#!/usr/bin/env bash
+# Spark local mode: a cold `liftlag build` (check + panels) of one generated export on the Spark
+# engine, to see how the build time grows with the export and what part is the fixed start-up.
+#
+#   flock /work/benchdata/bench.lock bench/run_spark_build.sh EXPORT_DIR [THREADS]
+#
+# The export's liftlag.toml is copied with [engine] kind = "spark", master = "local[THREADS]"
+# (default 2) and a fresh workspace under /tmp. Prints the 1-minute load average before the run,
+# the session start-up (the engine logs it apart: "Spark session (...) started in N s"), wall
+# seconds, and the CPU seconds and peak RSS that /usr/bin/time -v reports: those cover the Python
+# driver only (the JVM is not waited for as its child), not the build's total. Wall times taken
+# under load are upper bounds.
+#
+# Environment: LIFTLAG (default: liftlag beside this repository's .venv python).
+set -euo pipefail
+[[ $# -ge 1 && -f "$1/liftlag.toml" ]] || { echo "usage: $0 EXPORT_DIR [THREADS]" >&2; exit 2; }
+export_dir=$(cd "$1" && pwd)
+threads=${2:-2}
+here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
+liftlag=${LIFTLAG:-$here/../.venv/bin/liftlag}
+work=$(mktemp -d /tmp/liftlag_spark_bench.XXXXXX)
+trap 'rm -rf "$work"' EXIT
+# The config without its [engine] and [workspace] sections (they come last in generated configs),
+# paths made absolute against the export folder.
+sed -e '/^\[engine\]/,$d' -e '/^\[workspace\]/,/^\[/{/^\[workspace\]/d;/^path/d}' \
+    -e "s#^path = \"\\(.*\\)\"#path = \"$export_dir/\\1\"#" "$export_dir/liftlag.toml" > "$work/liftlag.toml"
+cat >> "$work/liftlag.toml" <<TOML
+[workspace]
+path = "$work/ws"
+[engine]
+kind = "spark"
+master = "local[$threads]"
+threads = $threads
+TOML
+echo "export $(basename "$export_dir"), load average before: $(cut -d' ' -f1 /proc/loadavg), $(nproc) cores, local[$threads]"
+/usr/bin/time -v "$liftlag" build -c "$work/liftlag.toml" > "$work/build.log" 2>&1 || { tail -n 40 "$work/build.log"; exit 1; }
+grep -h "Spark session" "$work/build.log" || true
+awk -F': ' '/Elapsed \(wall clock\)/ {print "wall " $2}
+            /User time/ {u=$2} /System time/ {s=$2}
+            /Maximum resident set size/ {printf "peak RSS %.0f MB\n", $2/1024}
+            END {printf "CPU %.1f s (user + sys)\n", u+s}' "$work/build.log"
