@@ -34,6 +34,7 @@ import datetime as dt
 import json
 import os
 import re
+import shutil
 import signal
 import subprocess
 import sys
@@ -192,6 +193,9 @@ def main() -> int:
     notes = []
     with tempfile.TemporaryDirectory(prefix="liftlag_compare_") as tmp:
         tmp = Path(tmp)
+        # The peers run from a copy taken now, so edits to the tree during a long run cannot
+        # change them half-way (the commit recorded is the one they ran).
+        peers = Path(shutil.copytree(HERE / "peers", tmp / "peers", ignore=shutil.ignore_patterns("__pycache__")))
         ws = {}
         kinds = (["duckdb"] if "liftlag" in only else []) + (["spark"] if args.spark else [])
         for kind in kinds:
@@ -205,7 +209,7 @@ def main() -> int:
                 notes.append("liftlag " + liftlag_steps(tmp / f"{kind}.log"))
         counts = {}
         if "bare" in only:
-            results["bare DuckDB job"] = timed([python, str(HERE / "peers" / "bare_duckdb.py"), str(export),
+            results["bare DuckDB job"] = timed([python, str(peers / "bare_duckdb.py"), str(export),
                                                 str(tmp / "bare.duckdb"), "--threads", str(args.threads)], tmp / "bare.log")
             line = [l for l in (tmp / "bare.log").read_text().splitlines() if l.startswith("{")]
             counts["bare"] = json.loads(line[0])["rows"] if line else {}
@@ -222,7 +226,7 @@ def main() -> int:
                 continue
             out = tmp / f"{peer}_out"
             name = f"{peer} peer"
-            results[name] = timed([python, str(HERE / "peers" / f"{peer}_peer.py"), str(export), str(out)],
+            results[name] = timed([python, str(peers / f"{peer}_peer.py"), str(export), str(out)],
                                   tmp / f"{peer}.log", rss_cap_kb=cap)
             if results[name]["exit"] != 0:
                 print(f"--- {name} failed: " + (tmp / f"{peer}.log").read_text()[-1500:])

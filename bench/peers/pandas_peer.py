@@ -36,6 +36,7 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+import pyarrow.parquet as pq
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from export_config import ALLOWED, CONTRACT, REJECT_RULES, Export, Table, load  # noqa: E402
@@ -49,7 +50,8 @@ def read_raw(table: Table) -> pd.DataFrame:
     """All files of one table, under contract names, in file order."""
     wanted = {table.export_column(c): c for c, _, _ in CONTRACT[table.name]}
     if table.format == "parquet":
-        frames = [pd.read_parquet(f, columns=[c for c in wanted]) for f in table.files]
+        present = set(pq.read_schema(table.files[0]).names)
+        frames = [pd.read_parquet(f, columns=[c for c in wanted if c in present]) for f in table.files]
     else:
         frames = [pd.read_csv(f, dtype=str, keep_default_na=False) for f in table.files]
         frames = [f[[c for c in wanted if c in f.columns]] for f in frames]
@@ -61,6 +63,21 @@ def blank(s: pd.Series) -> pd.Series:
     if s.dtype == object:
         return s.isna() | (s.str.strip(" ") == "")
     return s.isna()
+
+
+def far_times(s: pd.Series, failed: pd.Series) -> pd.Series:
+    """Times that parse but lie outside pandas' nanosecond range (1677-2262), as numpy values.
+
+    pandas turns a placeholder such as 2999-01-01 into NaT; liftlag reads it and rejects it as
+    beyond the horizon, not as unparseable. Only the (few) rows pandas could not parse are tried.
+    """
+    far = pd.Series(None, index=s.index, dtype=object)
+    for i, text in s[failed].items():
+        try:
+            far[i] = np.datetime64(str(text).strip().replace(" ", "T"), "us")
+        except ValueError:
+            pass
+    return far
 
 
 def stage(table: Table, raw: pd.DataFrame) -> pd.DataFrame:
@@ -88,11 +105,14 @@ def stage(table: Table, raw: pd.DataFrame) -> pd.DataFrame:
             else:
                 typed = pd.to_datetime(s)
             typed = typed.astype("datetime64[ns]").where(~is_blank)
+            out["_far_" + name] = far_times(s, ~is_blank & typed.isna())
         else:
             typed = pd.to_numeric(s, errors="coerce") if s.dtype == object else s.astype(float)
             typed = typed.where(np.isfinite(typed) & ~is_blank)
         out[name] = typed
         bad = (~is_blank & typed.isna()).to_numpy()
+        if kind == "time":
+            bad &= out["_far_" + name].isna().to_numpy()
         if required:
             missing |= is_blank.to_numpy()
             unparseable |= bad
@@ -130,8 +150,13 @@ class Reasons:
         return {REJECT_RULES[v]: int(c) for v, c in zip(values, counts)}
 
 
-def beyond(s: pd.Series, earliest, latest) -> np.ndarray:
-    return (s.notna() & ((s > latest) | (s < earliest))).to_numpy()
+def beyond(df: pd.DataFrame, column: str, earliest, latest) -> np.ndarray:
+    s = df[column]
+    hit = (s.notna() & ((s > latest) | (s < earliest))).to_numpy()
+    far = df["_far_" + column] if "_far_" + column in df else pd.Series(dtype=object)
+    for i, value in far.dropna().items():
+        hit[df.index.get_loc(i)] = value > np.datetime64(latest, "us") or value < np.datetime64(earliest, "us")
+    return hit
 
 
 def check(ex: Export, staged: dict[str, pd.DataFrame]):
@@ -141,14 +166,14 @@ def check(ex: Export, staged: dict[str, pd.DataFrame]):
         r = reasons[name]
         r.hit("missing_required", df["_missing"])
         r.hit("unparseable_value", df["_unparseable"])
-        cols = [c for c, _, _ in CONTRACT[name]] + ["_raw_problem"]
+        cols = [c for c, _, _ in CONTRACT[name]] + [c for c in df.columns if c.startswith(("_raw", "_far"))]
         if name == "promotions":
             late = ex.horizon_promotion_latest
-            r.hit("timestamp_beyond_horizon", beyond(df["starts_at"], ex.horizon_earliest, late)
-                  | beyond(df["ends_at"], ex.horizon_earliest, late))
+            r.hit("timestamp_beyond_horizon", beyond(df, "starts_at", ex.horizon_earliest, late)
+                  | beyond(df, "ends_at", ex.horizon_earliest, late))
         else:
-            stamp = df["ordered_at" if name == "transactions" else "assigned_at"]
-            r.hit("timestamp_beyond_horizon", beyond(stamp, ex.horizon_earliest, ex.horizon_latest))
+            stamp = "ordered_at" if name == "transactions" else "assigned_at"
+            r.hit("timestamp_beyond_horizon", beyond(df, stamp, ex.horizon_earliest, ex.horizon_latest))
         r.hit("duplicate_row", df.duplicated(subset=cols, keep="first"))
         if name == "promotions":
             key = df["promotion_id"]

@@ -60,7 +60,10 @@ def scan(table: Table) -> pl.LazyFrame:
 
 def parse_time(col: pl.Expr) -> pl.Expr:
     text = col.str.strip_chars(" ")
+    zoned = [text.str.to_datetime(f, strict=False, time_unit="us", time_zone="UTC").dt.replace_time_zone(None)
+             for f in ("%Y-%m-%dT%H:%M:%S%.f%z", "%Y-%m-%d %H:%M:%S%.f%z")]  # an offset: the time in UTC
     return pl.coalesce(
+        *zoned,
         text.str.to_datetime("%Y-%m-%d %H:%M:%S%.f", strict=False, time_unit="us"),
         text.str.to_datetime("%Y-%m-%dT%H:%M:%S%.f", strict=False, time_unit="us"),
         text.str.to_date("%Y-%m-%d", strict=False).cast(TIME),
