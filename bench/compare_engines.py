@@ -144,9 +144,12 @@ def panel_counts(workspace: Path) -> dict:
 def liftlag_steps(log: Path) -> str:
     """'check 3.1 s of 10.8 s in the build' from the build's own output (its 'panels (N s)'
     title is the whole build, check included)."""
-    steps = dict(re.findall(r"^(check|panels) \(([\d.]+) s\)", log.read_text(), flags=re.M))
+    text = log.read_text()
+    steps = dict(re.findall(r"^(check|panels) \(([\d.]+) s\)", text, flags=re.M))
+    panels = re.findall(r"^\S\s(\w+)\s+\S\s+[\d,]+\s\S\s+([\d.]+)\s\S$", text, flags=re.M)
+    each = f" ({', '.join(f'{name} {s}' for name, s in panels)})" if panels else ""
     if "check" in steps and "panels" in steps:
-        return f"check {steps['check']} s of {steps['panels']} s in the build"
+        return f"check {steps['check']} s of {steps['panels']} s in the build{each}"
     return ""
 
 
