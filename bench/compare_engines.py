@@ -67,37 +67,48 @@ def load_average() -> float:
     return float(Path("/proc/loadavg").read_text().split()[0])
 
 
-def _rss_of_tree(pid: int) -> int:
-    """Resident kB of a process and its descendants (from /proc)."""
-    total, stack = 0, [pid]
+def _tree_usage(pid: int) -> tuple[int, float]:
+    """(resident kB, CPU seconds) of a process and its descendants, from /proc."""
+    rss, cpu, stack = 0, 0.0, [pid]
+    tick = os.sysconf("SC_CLK_TCK")
     while stack:
         p = stack.pop()
         try:
             status = Path(f"/proc/{p}/status").read_text()
-            total += int(re.search(r"VmRSS:\s+(\d+)", status).group(1)) if "VmRSS" in status else 0
+            rss += int(re.search(r"VmRSS:\s+(\d+)", status).group(1)) if "VmRSS" in status else 0
+            fields = Path(f"/proc/{p}/stat").read_text().rsplit(")", 1)[1].split()
+            cpu += (int(fields[11]) + int(fields[12])) / tick  # utime, stime
             for task in Path(f"/proc/{p}/task").iterdir():
                 children = (task / "children").read_text().split()
                 stack += [int(c) for c in children]
-        except (FileNotFoundError, ProcessLookupError, AttributeError):
+        except (FileNotFoundError, ProcessLookupError, AttributeError, IndexError):
             continue
-    return total
+    return rss, cpu
 
 
 def timed(cmd: list[str], log: Path, rss_cap_kb: int | None = None) -> dict:
     """Run ``cmd`` under /usr/bin/time -v; stop it (and say so) if its memory passes the cap."""
     load = load_average()
     capped = False
+    started = time.perf_counter()
+    seen = (0, 0.0)
     with log.open("w") as fh:
         proc = subprocess.Popen(["/usr/bin/time", "-v", *cmd], stdout=fh, stderr=subprocess.STDOUT,
                                 start_new_session=True)
         while proc.poll() is None:
             time.sleep(0.5)
-            if rss_cap_kb and _rss_of_tree(proc.pid) > rss_cap_kb:
-                capped = True
-                os.killpg(proc.pid, signal.SIGKILL)
-                proc.wait()
+            if rss_cap_kb:
+                usage = _tree_usage(proc.pid)
+                seen = (max(seen[0], usage[0]), max(seen[1], usage[1]))
+                if usage[0] > rss_cap_kb:
+                    capped = True
+                    os.killpg(proc.pid, signal.SIGKILL)
+                    proc.wait()
     text = log.read_text()
     result = {"exit": proc.returncode, "load_before": load, "log": str(log), "capped": capped}
+    if capped:  # GNU time was stopped too: what was seen from /proc up to the stop
+        result.update(seconds=round(time.perf_counter() - started, 2), cpu_seconds=round(seen[1], 2),
+                      peak_rss_mb=round(seen[0] / 1024))
     wall = re.search(r"Elapsed \(wall clock\) time \(h:mm:ss or m:ss\): (\S+)", text)
     if wall:
         parts = [float(p) for p in wall.group(1).split(":")]
@@ -109,7 +120,7 @@ def timed(cmd: list[str], log: Path, rss_cap_kb: int | None = None) -> dict:
         status = re.search(r"Exit status: (\d+)", text)
         result["exit"] = int(status.group(1)) if status else result["exit"]
     if capped:
-        result["exit"] = "stopped at the RSS cap"
+        result["exit"] = f"stopped at the RSS cap of {rss_cap_kb / 1024 ** 2:g} GB"
     return result
 
 
@@ -155,7 +166,8 @@ def liftlag_steps(log: Path) -> str:
 
 def commit() -> str:
     head = subprocess.run(["git", "-C", str(ROOT), "rev-parse", "--short", "HEAD"], capture_output=True, text=True).stdout.strip()
-    dirty = subprocess.run(["git", "-C", str(ROOT), "status", "--porcelain", "--", "toolkit", "sql", "bench"],
+    dirty = subprocess.run(["git", "-C", str(ROOT), "status", "--porcelain", "--", "toolkit", "sql",
+                            "bench/peers", "bench/compare_engines.py"],
                            capture_output=True, text=True).stdout.strip()
     return head + ("+uncommitted" if dirty else "")
 
@@ -164,7 +176,7 @@ def fmt(r: dict | None) -> str:
     if r is None:
         return "not run"
     if "seconds" not in r or r["exit"] != 0:
-        extra = f" after {r['seconds']} s, {r['peak_rss_mb']} MB" if "seconds" in r else ""
+        extra = f" after {r['seconds']} s / {r['cpu_seconds']} cpu s / {r['peak_rss_mb']} MB" if "seconds" in r else ""
         return f"failed ({r['exit']}){extra}"
     return f"{r['seconds']} s / {r['cpu_seconds']} cpu s / {r['peak_rss_mb']} MB"
 
