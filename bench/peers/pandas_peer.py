@@ -261,7 +261,7 @@ def build_orders(ex: Export, t: pd.DataFrame) -> pd.DataFrame:
     o.loc[o["cost_missing"], "cost_amount"] = np.nan
     o["ordered_on"] = o["ordered_at"].dt.normalize()
     o["margin_amount"] = o["net_amount"] - o["cost_amount"]
-    o["is_return"] = o["net_amount"] < 0
+    o["is_return"] = o["net_amount"] < -0.005  # as liftlag: below minus half a cent
     o["depth"] = np.where(o["list_amount"] > 0, o["discount_amount"].clip(lower=0) / o["list_amount"], 0.0)
     return o[["order_id", "customer_id", "ordered_at", "ordered_on", "lines", "quantity", "net_amount",
               "list_amount", "discount_amount", "cost_amount", "margin_amount", "is_deal", "is_return",

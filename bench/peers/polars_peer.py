@@ -228,7 +228,7 @@ def build_orders(ex: Export, t: pl.LazyFrame) -> pl.LazyFrame:
             "order_id", "customer_id", "ordered_at", pl.col("ordered_at").dt.date().alias("ordered_on"), "lines",
             "quantity", "net_amount", "list_amount", "discount_amount", "cost_amount",
             (pl.col("net_amount") - pl.col("cost_amount")).alias("margin_amount"), "is_deal",
-            (pl.col("net_amount") < 0).alias("is_return"), "promotion_id",
+            (pl.col("net_amount") < -0.005).alias("is_return"), "promotion_id",
             pl.when(pl.col("list_amount") > 0).then(pl.col("discount_amount").clip(lower_bound=0) / pl.col("list_amount"))
             .otherwise(0.0).alias("depth"),
         )
