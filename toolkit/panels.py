@@ -233,6 +233,8 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         con.execute("DETACH out")
         # The checked inputs travel with the panels, so that a reader sees one build, whole.
         source = checked_private if checked_private is not None else checked_published
+        with timings.step("publish checked inputs and build record"):
+            _seal_checked(settings, panels_private, source)
         result.steps = timings.records()
         build = {
             "fingerprint": fp,
@@ -248,9 +250,7 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
             "version": record["version"],
             "record": record,
         }
-        with timings.step("publish checked inputs and build record"):
-            _seal(settings, panels_private, source, build)
-        build["steps"] = result.steps = timings.records()
+        _seal_record(settings, panels_private, build)
     except BaseException:
         con.close()
         workspace.discard(panels_private)
@@ -279,18 +279,27 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     return result
 
 
-def _seal(settings: Settings, panels_private: Path, checked_private: Path, build: dict) -> None:
-    """Put the checked inputs (schema ``checked``) and the build record (``meta.build``) into the
-    private panels file, so that a reader sees one build, whole. Plain DuckDB on the two private
-    files, whichever engine built them."""
+def _seal_checked(settings: Settings, panels_private: Path, checked: Path) -> None:
+    """Copy the checked inputs into the private panels file (schema ``checked``), so that a reader
+    sees one build, whole. Plain DuckDB on the two files, whichever engine built them."""
     con = engine_connect(settings, panels_private)
     try:
-        con.execute("ATTACH ? AS chk (READ_ONLY)", [str(checked_private)])
+        con.execute("ATTACH ? AS chk (READ_ONLY)", [str(checked)])
         con.execute("CREATE SCHEMA checked")
         for (table,) in con.execute(
-                "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' ORDER BY 1").fetchall():
+                "SELECT table_name FROM duckdb_tables() WHERE database_name = 'chk' AND schema_name = 'main' "
+                "ORDER BY 1").fetchall():  # not meta.check, the check's own record
             con.execute(f"CREATE TABLE checked.{q(table)} AS SELECT * FROM chk.main.{q(table)}")
         con.execute("DETACH chk")
+    finally:
+        con.close()
+
+
+def _seal_record(settings: Settings, panels_private: Path, build: dict) -> None:
+    """Write the build record (``meta.build``) into the private panels file, the last write before
+    it is published."""
+    con = engine_connect(settings, panels_private)
+    try:
         con.execute("CREATE SCHEMA meta")
         con.execute(f"CREATE TABLE {workspace.META_TABLE} (fingerprint VARCHAR, record VARCHAR)")
         con.execute(f"INSERT INTO {workspace.META_TABLE} VALUES (?, ?)",
