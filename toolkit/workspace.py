@@ -67,14 +67,19 @@ def process_tag() -> str:
 # --- state.json ---------------------------------------------------------------------------------
 
 
-def read_state(settings: Settings) -> dict:
-    p = path(settings, STATE)
+def _read_json(settings: Settings, name: str) -> dict:
+    """A JSON file of the workspace ({} when it is missing or unreadable)."""
+    p = path(settings, name)
     if not p.exists():
         return {}
     try:
         return json.loads(p.read_text())
     except (OSError, json.JSONDecodeError):
         return {}
+
+
+def read_state(settings: Settings) -> dict:
+    return _read_json(settings, STATE)
 
 
 def write_state(settings: Settings, state: dict) -> None:
@@ -99,13 +104,7 @@ def fingerprint(*parts) -> str:
 
 def read_manifest(settings: Settings) -> dict:
     """``manifest.json``: the last check's and the last build's timings ({} when there is none)."""
-    p = path(settings, MANIFEST)
-    if not p.exists():
-        return {}
-    try:
-        return json.loads(p.read_text())
-    except (OSError, json.JSONDecodeError):
-        return {}
+    return _read_json(settings, MANIFEST)
 
 
 def write_manifest(settings: Settings, command: str, entry: dict) -> None:
