@@ -27,13 +27,13 @@ GROUP BY customer_id, order_id;
 
 CREATE TABLE customer_weeks AS
 SELECT customer_id, CAST(date_trunc('week', ordered_on) AS DATE) AS week_on,
-       count(*) FILTER (WHERE net_amount >= 0) AS orders, sum(net_amount) AS net_amount
+       count(*) FILTER (WHERE net_amount >= -0.005) AS orders, sum(net_amount) AS net_amount
 FROM orders GROUP BY ALL;
 
 CREATE TABLE gaps AS
 SELECT customer_id, order_id, ordered_on,
        lead(ordered_on) OVER (PARTITION BY customer_id ORDER BY ordered_at, order_id) AS next_ordered_on
-FROM orders WHERE net_amount >= 0;
+FROM orders WHERE net_amount >= -0.005;  -- a return is below minus half a cent, as in liftlag
 """
 
 
