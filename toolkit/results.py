@@ -30,6 +30,22 @@ def check_out_dir(out_dir, option: str = "--out") -> Path:
     return path
 
 
+def typed_for_parquet(frame: pd.DataFrame) -> pd.DataFrame:
+    """A copy whose mixed object columns Parquet can store: all-boolean ones as nullable booleans,
+    others that are not all text as text (missing values stay missing)."""
+    import numpy as np
+
+    frame = frame.copy()
+    for col in frame.columns:
+        if frame[col].dtype == object:
+            values = frame[col].dropna()
+            if len(values) and values.map(lambda v: isinstance(v, (bool, np.bool_))).all():
+                frame[col] = frame[col].astype("boolean")
+            elif len(values) and not values.map(lambda v: isinstance(v, str)).all():
+                frame[col] = frame[col].astype(str).where(frame[col].notna(), None)
+    return frame
+
+
 def write_tables(out_dir: Path, tables: dict[str, pd.DataFrame]) -> list[Path]:
     """Write each DataFrame as ``<name>.parquet`` into ``out_dir`` (created if needed)."""
     out_dir = Path(out_dir)

@@ -35,6 +35,7 @@ from rich.markup import escape
 from ..contract import PANELS
 from ..errors import AnalysisError, ConfigError, DataError, StatisticalWarning
 from ..failures import interrupt_requested
+from ..results import typed_for_parquet
 from .balance import CHECK_COLUMNS, RandomisationCheck
 from .economics import ECONOMICS_COLUMNS, campaign_economics
 from .features import PANEL_FEATURES, campaign_features
@@ -646,15 +647,7 @@ def write_campaign(readout: CampaignReadout, out_dir: str | Path, *, html: bool 
 
 
 def _to_parquet(frame: pd.DataFrame, path: Path) -> None:
-    frame = frame.copy()
-    for col in frame.columns:
-        if frame[col].dtype == object:
-            values = frame[col].dropna()
-            if len(values) and values.map(lambda v: isinstance(v, (bool, np.bool_))).all():
-                frame[col] = frame[col].astype("boolean")
-            elif len(values) and not values.map(lambda v: isinstance(v, str)).all():
-                frame[col] = frame[col].astype(str).where(frame[col].notna(), None)
-    frame.to_parquet(path, index=False)
+    typed_for_parquet(frame).to_parquet(path, index=False)
 
 
 def run_campaigns(settings, out_dir: str | Path, console=None, *, promotion_ids: Iterable[str] | None = None) -> dict:

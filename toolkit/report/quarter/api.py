@@ -27,11 +27,11 @@ from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from ... import __version__
 from ...errors import ConfigError
+from ...results import typed_for_parquet
 from . import derive, health
 from .gather import PRIVATE_TABLES, QuarterInputs, gather
 from .period import Quarter, export_days, require_quarter
@@ -99,16 +99,8 @@ def _check_out(out: Path) -> None:
 
 def _normalise(frame: pd.DataFrame) -> pd.DataFrame:
     """A table as written: positional index, runtime columns dropped, mixed object columns typed."""
-    frame = frame.drop(columns=[c for c in RUNTIME_COLUMNS if c in frame.columns]).reset_index(drop=True).copy()
-    for col in frame.columns:
-        if frame[col].dtype == object:
-            values = frame[col].dropna()
-            if len(values) and values.map(lambda v: isinstance(v, (bool, np.bool_))).all():
-                frame[col] = frame[col].astype("boolean")
-            elif len(values) and not values.map(lambda v: isinstance(v, str)).all():
-                frame[col] = frame[col].map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v))
-                                            else str(v))
-    return frame
+    return typed_for_parquet(frame.drop(columns=[c for c in RUNTIME_COLUMNS if c in frame.columns])
+                             .reset_index(drop=True))
 
 
 def derive_tables(con, settings, inputs: QuarterInputs) -> dict[str, pd.DataFrame]:
