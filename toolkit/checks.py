@@ -50,6 +50,7 @@ RULES: tuple[Rule, ...] = (
     Rule("missing_required", "reject"),
     Rule("unparseable_value", "reject"),
     Rule("timestamp_beyond_horizon", "reject"),
+    Rule("date_outside_partition", "reject"),
     Rule("duplicate_row", "reject"),
     Rule("duplicate_key", "reject"),
     Rule("value_not_allowed", "reject"),
@@ -122,16 +123,18 @@ def _allowed_text(settings: Settings, table: str, column: str, allowed: tuple[st
     return f"one of the export's codes {codes} (tables.{table}.values.{column}){rest}"
 
 
-def _accepted_select(con, name: str, rejected: str | None = None) -> str:
+def _accepted_select(con, name: str, rejected: str | None = None, staged: str | None = None) -> str:
     """SELECT of one table's accepted rows, with the contract's derivations applied.
 
     ``rejected``: the ANTI JOIN that drops the rejected rows (default: the ``rejected`` table by
-    row key; "" when the table has no rejected row)."""
+    row key; "" when the table has no rejected row); ``staged``: the staged view read (default
+    ``staged_<name>``)."""
     contract = INPUT_TABLES[name]
+    staged = staged or f"staged_{name}"
     cols = [c.name for c in contract.columns]
     extras = []
     if contract.extra_columns:
-        described = [r[0] for r in con.execute(f"DESCRIBE {q('staged_' + name)}").fetchall()]
+        described = [r[0] for r in con.execute(f"DESCRIBE {q(staged)}").fetchall()]
         extras = [c for c in described if not c.startswith("_") and c not in cols]
     exprs = []
     for c in cols:
@@ -145,7 +148,7 @@ def _accepted_select(con, name: str, rejected: str | None = None) -> str:
     exprs += [_typed_attribute(con, name, e) for e in extras]
     if rejected is None:
         rejected = f"ANTI JOIN rejected AS r ON r.table_name = '{name}' AND r._row_id = s._row_id"
-    return f"SELECT {', '.join(exprs)} FROM {q('staged_' + name)} AS s {rejected}".rstrip()
+    return f"SELECT {', '.join(exprs)} FROM {q(staged)} AS s {rejected}".rstrip()
 
 
 def _typed_attribute(con, table: str, column: str) -> str:
@@ -236,7 +239,7 @@ class _Both:
 
 
 def validate(con, settings: Settings, progress=None, *, checked_path: Path | None = None,
-             fingerprint: str | None = None, timings: Timings | None = None) -> CheckResult:
+             fingerprint: str | None = None, timings: Timings | None = None, plan=None) -> CheckResult:
     """Stage the export on ``con``, run every rule and write the checked tables.
 
     Leaves on ``con`` the temporary views ``accepted_<table>`` (accepted rows, typed, with the
@@ -252,12 +255,16 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
     timings : Timings, optional
         Records each step (seconds, rows) and tells its watcher; by default the step names go
         to ``progress``. The records are also in the result's ``steps``.
+    plan : toolkit.incremental.Plan, optional
+        A ``build --since`` plan: only its new order-line files are checked; the earlier files keep
+        the last build's verdicts (``_merge_kept``). Raises ``NotIncremental`` when that is not sound.
     """
     started = time.perf_counter()
     timings = timings or Timings(TextWatcher(progress) if progress else None)
     first_step = len(timings.steps)
     fp = fingerprint or input_fingerprint(settings)[0]
-    infos = sources.register(con, settings, timings=timings)
+    only = {"transactions": plan.new_files} if plan is not None else None
+    infos = sources.register(con, settings, timings=timings, only_files=only)
     for statement in sources.staged_union_sql():
         con.execute(statement)
     for table, column, allowed in (("assignments", "arm", ARMS), ("promotions", "mechanic", MECHANICS),
@@ -316,6 +323,10 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
     with timings.step("accounting (accepted + rejected = read)") as step:
         summary = _summary(con, infos)
         step.rows = int(summary["rows_read"].sum())
+    if plan is not None:
+        with timings.step("verdicts of the earlier files") as step:
+            summary = _merge_kept(con, settings, plan, summary)
+            step.rows = int(summary.loc[summary["table"] == "transactions", "rows_read"].iloc[0])
     problems = _problems(summary, con)
     if not problems:
         # The data can be read; can it answer the question? (toolkit.gates)
@@ -334,7 +345,8 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
             con.execute("ATTACH ? AS out", [str(target)])
             for name in PERSISTED:
                 con.execute(f"CREATE TABLE out.{q(name)} AS SELECT * FROM {q('accepted_' + name)}")
-            step.rows = _write_rejects(con)
+            step.rows = _write_rejects(con, kept=plan is not None)
+            _write_file_counts(con, kept=plan is not None)
             con.execute("CREATE TABLE out.check_summary AS SELECT * FROM summary_df")
             _write_meta(con, result)
             con.execute("DETACH out")
@@ -494,8 +506,11 @@ def _summary(con, infos: dict) -> pd.DataFrame:
     return summary
 
 
-def _write_rejects(con) -> int:
-    """Write the rejected and warned rows and their summaries to ``out``; returns the rejected rows."""
+def _write_rejects(con, kept: bool = False) -> int:
+    """Write the rejected and warned rows and their summaries to ``out``; returns the rejected rows.
+
+    ``kept``: an incremental build; the earlier files' rejected rows, warning counts and examples
+    (``_merge_kept``) are written with the new ones."""
     parts = []
     for name in INPUT_TABLES:
         parts.append(
@@ -503,19 +518,131 @@ def _write_rejects(con) -> int:
             f"r.all_reasons, s._raw_values AS raw_values FROM rejected AS r "
             f"INNER JOIN {q('staged_' + name)} AS s ON r._row_id = s._row_id WHERE r.table_name = '{name}'"
         )
+    if kept:
+        parts.append("SELECT * FROM kept_rejected")
     con.execute("CREATE TABLE out.rejected_rows AS " + " UNION ALL ".join(parts))
     con.execute("CREATE TABLE out.rejects_summary AS SELECT * FROM rejects_summary_df")
+    warned_counts = "SELECT table_name, rule, count(*) AS rows FROM warned GROUP BY 1, 2"
+    if kept:
+        warned_counts += (" UNION ALL SELECT table_name, rule, rows FROM kept_counts "
+                          "WHERE NOT starts_with(rule, '_') AND severity = 'warn'")
     con.execute(
-        "CREATE TABLE out.warnings_summary AS SELECT table_name AS \"table\", rule, count(*) AS rows "
-        "FROM warned GROUP BY ALL ORDER BY 1, 2"
+        "CREATE TABLE out.warnings_summary AS SELECT table_name AS \"table\", rule, CAST(sum(rows) AS BIGINT) AS rows "
+        f"FROM ({warned_counts}) GROUP BY 1, 2 ORDER BY 1, 2"
     )
+    examples = ("SELECT w.table_name, s._file_row AS row_id, s._source_file AS source_file, w.rule, w.detail, "
+                "0 AS part, w._row_id AS place FROM warned AS w INNER JOIN staged_all_sources AS s "
+                "ON w.table_name = s.table_name AND w._row_id = s._row_id")
+    if kept:
+        examples += (" UNION ALL SELECT table_name, row_id, source_file, rule, detail, 1 AS part, row_id AS place "
+                     "FROM kept_warning_rows")
     con.execute(
-        "CREATE TABLE out.warning_rows AS SELECT w.table_name, s._file_row AS row_id, s._source_file AS source_file, "
-        "w.rule, w.detail FROM (SELECT *, row_number() OVER (PARTITION BY table_name, rule ORDER BY _row_id) AS n "
-        f"FROM warned) AS w INNER JOIN staged_all_sources AS s ON w.table_name = s.table_name AND w._row_id = s._row_id "
-        f"WHERE w.n <= {WARNING_EXAMPLES}"
+        "CREATE TABLE out.warning_rows AS SELECT table_name, row_id, source_file, rule, detail FROM ("
+        "SELECT *, row_number() OVER (PARTITION BY table_name, rule ORDER BY part, place) AS n "
+        f"FROM ({examples})) WHERE n <= {WARNING_EXAMPLES}"
     )
     return int(scalar(con, "SELECT count(*) FROM out.rejected_rows"))
+
+
+def _write_file_counts(con, kept: bool = False) -> None:
+    """``file_counts``: per order-line file, the lines read (rule ``_read``), the lines warned about
+    (``_warned``), and the lines each rule rejected or warned about: what a later ``build --since``
+    keeps for the files it does not check again."""
+    per_file = ("FROM {hits} AS h INNER JOIN staged_transactions AS s ON h._row_id = s._row_id "
+                "WHERE h.table_name = 'transactions'")
+    parts = [
+        "SELECT 'transactions' AS table_name, _source_file AS source_file, '_read' AS rule, '' AS severity, "
+        "count(*) AS rows FROM staged_transactions GROUP BY 1, 2, 3, 4",
+        "SELECT 'transactions', s._source_file, '_warned', '', count(DISTINCT h._row_id) "
+        + per_file.format(hits="warned") + " GROUP BY 1, 2, 3, 4",
+        "SELECT 'transactions', s._source_file, h.rule, 'warn', count(*) " + per_file.format(hits="warned")
+        + " GROUP BY 1, 2, 3, 4",
+        "SELECT 'transactions', s._source_file, h.reason, 'reject', count(*) " + per_file.format(hits="rejected")
+        + " GROUP BY 1, 2, 3, 4",
+    ]
+    if kept:
+        parts.append("SELECT table_name, source_file, rule, severity, rows FROM kept_counts")
+    con.execute("CREATE TABLE out.file_counts AS SELECT table_name, source_file, rule, severity, "
+                "CAST(rows AS BIGINT) AS rows FROM (" + " UNION ALL ".join(parts) + ")")
+
+
+# --- a build --since: the earlier files keep their verdicts ------------------------------------------
+
+
+class NotIncremental(Exception):
+    """An incremental build found it is not sound after all; the caller builds in full."""
+
+
+def _merge_kept(con, settings: Settings, plan, summary: pd.DataFrame) -> pd.DataFrame:
+    """Add the earlier files' lines to the check, with the verdicts of the last build.
+
+    Reads the earlier files again through the source layer (no rule runs), drops the lines the
+    last build rejected (by file and row), and makes ``accepted_transactions`` the new accepted
+    lines and these. Verifies per file that the lines read now are the lines counted then, and
+    that the promotions those lines were checked against are unchanged. Returns the summary with
+    the earlier files' counts added.
+    """
+    con.execute("ATTACH ? AS prev (READ_ONLY)", [str(plan.previous)])
+    con.register("kept_files_df", pd.DataFrame({"source_file": list(plan.kept_files)}, dtype=object))
+    con.execute("CREATE OR REPLACE TEMP TABLE kept_files AS SELECT CAST(source_file AS VARCHAR) AS source_file "
+                "FROM kept_files_df")
+    con.unregister("kept_files_df")
+    con.execute("CREATE OR REPLACE TEMP TABLE kept_counts AS SELECT c.* FROM prev.checked.file_counts AS c "
+                "SEMI JOIN kept_files AS k ON c.source_file = k.source_file")
+    con.execute("CREATE OR REPLACE TEMP TABLE kept_rejected AS SELECT r.* FROM prev.checked.rejected_rows AS r "
+                "SEMI JOIN kept_files AS k ON r.source_file = k.source_file WHERE r.table_name = 'transactions'")
+    con.execute("CREATE OR REPLACE TEMP TABLE kept_warning_rows AS SELECT w.* FROM prev.checked.warning_rows AS w "
+                "SEMI JOIN kept_files AS k ON w.source_file = k.source_file WHERE w.table_name = 'transactions'")
+    if plan.kept_files:
+        sources.register(con, settings, only_files={"transactions": plan.kept_files}, tables=("transactions",),
+                         suffix="_kept")
+        read_now = dict(con.execute("SELECT _source_file, count(*) FROM staged_transactions_kept GROUP BY 1").fetchall())
+    else:
+        read_now = {}
+    read_then = dict(con.execute("SELECT source_file, rows FROM kept_counts WHERE rule = '_read'").fetchall())
+    if read_now != read_then:
+        differ = sorted(set(read_now.items()) ^ set(read_then.items()))
+        raise NotIncremental(f"the earlier file {differ[0][0]} does not hold the lines the last build counted")
+    if not _promotions_unchanged(con):
+        raise NotIncremental("a promotion that earlier order lines were checked against changed or was rejected")
+    kept_read = sum(read_then.values())
+    kept_rejected = int(scalar(con, "SELECT count(*) FROM kept_rejected"))
+    kept_warned = int(scalar(con, "SELECT coalesce(sum(rows), 0) FROM kept_counts WHERE rule = '_warned'"))
+    new_accepted = _accepted_select(con, "transactions", None if scalar(
+        con, "SELECT count(*) FROM rejected WHERE table_name = 'transactions'") else "")
+    kept_accepted = _accepted_select(con, "transactions", (
+        "ANTI JOIN kept_rejected AS r ON r.row_id = s._file_row AND r.source_file = s._source_file"),
+        staged="staged_transactions_kept") if plan.kept_files else None
+    con.execute("CREATE OR REPLACE TEMP VIEW accepted_transactions AS " + new_accepted
+                + (f" UNION ALL {kept_accepted}" if kept_accepted else ""))
+    summary = summary.copy()
+    row = summary["table"] == "transactions"
+    summary.loc[row, "rows_read"] += kept_read
+    summary.loc[row, "rejected"] += kept_rejected
+    summary.loc[row, "accepted"] += kept_read - kept_rejected
+    summary.loc[row, "warnings"] += kept_warned
+    accepted = int(scalar(con, "SELECT count(*) FROM accepted_transactions"))
+    if accepted != int(summary.loc[row, "accepted"].iloc[0]):
+        raise DataError(f"table transactions: internal count mismatch, {accepted} lines kept but "
+                        f"{int(summary.loc[row, 'accepted'].iloc[0])} expected")
+    con.register("summary_df", summary)
+    rejects = con.execute(
+        "SELECT \"table\", reason, CAST(sum(rows) AS BIGINT) AS rows FROM (SELECT table_name AS \"table\", reason, "
+        "count(*) AS rows FROM rejected GROUP BY 1, 2 UNION ALL SELECT table_name, reason, count(*) FROM kept_rejected "
+        "GROUP BY 1, 2) GROUP BY 1, 2 ORDER BY 1, 2").df()
+    con.register("rejects_summary_df", rejects)
+    con.execute("DETACH prev")
+    return summary
+
+
+def _promotions_unchanged(con) -> bool:
+    """Every promotion the last build accepted is accepted now with the same values, and no earlier
+    line was rejected for naming a promotion then unknown (it might be known now)."""
+    cols = "promotion_id, starts_at, ends_at, mechanic, depth, audience"
+    gone = scalar(con, f"SELECT count(*) FROM (SELECT {cols} FROM prev.checked.promotions "
+                       f"EXCEPT SELECT {cols} FROM accepted_promotions)")
+    unknown = scalar(con, "SELECT count(*) FROM kept_rejected WHERE all_reasons LIKE '%unknown_promotion%'")
+    return gone == 0 and unknown == 0
 
 
 # A configured table with rows but none accepted makes the export unusable. Assignments are

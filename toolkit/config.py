@@ -6,6 +6,7 @@ Unknown keys are errors, with the nearest valid key suggested.
 
 from __future__ import annotations
 
+import datetime as dt
 import difflib
 import re
 import tomllib
@@ -34,6 +35,9 @@ class TableSettings:
     table: str | None = None  # for format = "duckdb": the table inside the database file
     hive_partitioning: bool | None = None
     encoding: str | None = None  # CSV only: utf-8 (default), utf-16 or latin-1
+    # transactions only: the hive partition key(s) that hold each line's order date ("order_date",
+    # or ["year", "month"] / ["year", "month", "day"]); files are then skipped by date
+    date_partition: tuple[str, ...] = ()
 
     def export_column(self, contract_name: str) -> str:
         return self.columns.get(contract_name, contract_name)
@@ -173,6 +177,18 @@ class WorkspaceSettings:
 
 
 @dataclass(frozen=True)
+class PeriodSettings:
+    """``[period]``: only order lines dated from ``first_day`` to ``last_day`` (inclusive) are read."""
+
+    first_day: dt.date | None = None
+    last_day: dt.date | None = None
+
+    @property
+    def bounded(self) -> bool:
+        return self.first_day is not None or self.last_day is not None
+
+
+@dataclass(frozen=True)
 class EngineSettings:
     threads: int | None = None
     memory_limit: str | None = None
@@ -198,6 +214,7 @@ class Settings:
     gates: GateSettings = GateSettings()
     workspace: WorkspaceSettings = WorkspaceSettings()
     engine: EngineSettings = EngineSettings()
+    period: PeriodSettings = PeriodSettings()
     raw: dict[str, Any] = field(default_factory=dict, repr=False)
 
     @property
@@ -224,10 +241,11 @@ _SECTIONS = {
     "gates": GateSettings,
     "workspace": WorkspaceSettings,
     "engine": EngineSettings,
+    "period": PeriodSettings,
 }
 _TOP_KEYS = ("tables", *_SECTIONS)
 _TABLE_KEYS = ("path", "format", "columns", "values", "formats", "delimiter", "header", "table", "hive_partitioning",
-               "encoding")
+               "encoding", "date_partition")
 ENCODINGS = ("utf-8", "utf-16", "latin-1")
 _MEMORY = re.compile(r"^\s*\d+(\.\d+)?\s*(B|KB|MB|GB|TB|KiB|MiB|GiB|TiB)\s*$", re.I)
 
@@ -331,11 +349,36 @@ def _parse_table(path: Path, name: str, body: Any) -> TableSettings:
         if encoding.lower() not in ENCODINGS:
             raise ConfigError(f"{path}: key '{where}.encoding' must be one of {', '.join(ENCODINGS)}, found {encoding!r}")
         encoding = encoding.lower()
+    date_partition = _date_partition(path, name, fmt, body.get("date_partition"))
     return TableSettings(
         name=name, path=file_path, format=fmt, columns=dict(columns),
         values={k: dict(v) for k, v in values.items()}, formats=dict(formats),
         delimiter=delimiter, header=header, table=table, hive_partitioning=hive, encoding=encoding,
+        date_partition=date_partition,
     )
+
+
+def _date_partition(path: Path, table: str, fmt: str, value: Any) -> tuple[str, ...]:
+    """``tables.transactions.date_partition``: one key holding a date, or year, month (and day) keys."""
+    key = f"tables.{table}.date_partition"
+    if value is None:
+        return ()
+    if table != "transactions":
+        raise ConfigError(f"{path}: key '{key}' is only for tables.transactions (the order lines' date partitions)")
+    if fmt == "duckdb":
+        raise ConfigError(f"{path}: key '{key}' needs files in folders such as order_date=2026-01-31/; "
+                          f"a DuckDB table has none")
+    what = ("the hive key holding each line's order date, e.g. \"order_date\", or the keys "
+            "[\"year\", \"month\"] or [\"year\", \"month\", \"day\"]")
+    keys = [value] if isinstance(value, str) else _expect(path, key, value, list, what)
+    if not 1 <= len(keys) <= 3:
+        raise ConfigError(f"{path}: key '{key}' must be {what}, found {value!r}")
+    for k in keys:
+        if not isinstance(k, str) or not k.strip():
+            raise ConfigError(f"{path}: key '{key}' must be {what}, found {value!r}")
+    if len(set(keys)) != len(keys):
+        raise ConfigError(f"{path}: key '{key}' names a key twice: {value!r}")
+    return tuple(keys)
 
 
 def _parse_section(path: Path, name: str, body: Any):
@@ -372,6 +415,8 @@ def _parse_section(path: Path, name: str, body: Any):
                      "min_lines_accepted_share", "min_assigned_found_share", "min_promotions_kept_share",
                      "max_outlying_date_share"):
             kwargs[key] = _share(path, full, value)
+        elif name == "period":
+            kwargs[key] = _day(path, full, value)
         elif key == "spark_conf":
             _expect(path, full, value, dict, "a table of Spark settings, e.g. \"spark.driver.memory\" = \"4g\"")
             kwargs[key] = _flat_conf(value)
@@ -393,6 +438,20 @@ def _parse_section(path: Path, name: str, body: Any):
         else:
             kwargs[key] = _expect(path, full, value, str, "text")
     return cls(**kwargs)
+
+
+def _day(path: Path, key: str, value: Any) -> dt.date:
+    """A day: a TOML date (2026-01-31) or the same as text."""
+    if isinstance(value, dt.datetime):
+        raise ConfigError(f"{path}: key '{key}' must be a day such as 2026-01-31, found a time {value!r}")
+    if isinstance(value, dt.date):
+        return value
+    if isinstance(value, str):
+        try:
+            return dt.date.fromisoformat(value.strip())
+        except ValueError:
+            pass
+    raise ConfigError(f"{path}: key '{key}' must be a day such as 2026-01-31, found {value!r}")
 
 
 def _flat_conf(value: dict, prefix: str = "") -> dict[str, str]:
@@ -431,6 +490,9 @@ def parse(data: dict[str, Any], config_path: Path) -> Settings:
         if required not in tables:
             raise ConfigError(f"{path}: section [tables.{required}] is missing; it is required (give its path)")
     sections = {name: _parse_section(path, name, data[name]) for name in _SECTIONS if name in data}
+    period = sections.get("period")
+    if period is not None and period.first_day and period.last_day and period.first_day > period.last_day:
+        raise ConfigError(f"{path}: period.first_day {period.first_day} is after period.last_day {period.last_day}")
     return Settings(config_path=path, tables=tables, raw=data, **sections)
 
 

@@ -131,7 +131,7 @@ def shown_file(source_file: str) -> str:
     return "/".join(parts)
 
 
-def run_build(settings, force: bool = False, *, wait: float | None = None):
+def run_build(settings, force: bool = False, *, wait: float | None = None, since=None):
     """Check (when needed) and build the panels, showing progress; returns the BuildResult.
 
     The check table is printed as soon as the check is done, so that it is there also when the
@@ -146,7 +146,7 @@ def run_build(settings, force: bool = False, *, wait: float | None = None):
             err_console.print(f"[yellow]note:[/] {escape(text)}")
 
         result = panels.build(settings, force=force, watcher=watcher, on_check=watcher.paused(print_check),
-                              notify=notify, wait=wait)
+                              notify=notify, wait=wait, since=since)
     if result.skipped:
         console.print("panels are up to date (inputs, SQL and settings unchanged); use --force to rebuild")
     else:

@@ -35,6 +35,10 @@ def register(sub, config_arg) -> None:
     p.add_argument("--wait", type=float, default=None, metavar="SECONDS",
                    help="wait this long for another build of the workspace to finish, then exit 2 "
                         "(default: [workspace] lock_wait_seconds, 600)")
+    p.add_argument("--since", default=None, metavar="DAY",
+                   help="check only the order-line files dated from DAY (YYYY-MM-DD) on, keeping the last build's "
+                        "verdicts for earlier files; needs tables.transactions.date_partition (else a full build, "
+                        "saying why)")
 
     p = sub.add_parser("sql", help="print the panel SQL, transpiled for another engine")
     p.add_argument("--dialect", required=True, help="spark, postgres, snowflake or bigquery (or duckdb, as written)")
@@ -75,7 +79,15 @@ def cmd_build(args) -> int:
     settings = config.load(args.config)
     if args.wait is not None and args.wait < 0:
         raise ConfigError(f"--wait {args.wait:g}: give a number of seconds, 0 or more")
-    run_build(settings, force=args.force, wait=args.wait)
+    since = None
+    if args.since is not None:
+        import datetime as dt
+
+        try:
+            since = dt.date.fromisoformat(args.since.strip())
+        except ValueError:
+            raise ConfigError(f"--since {args.since!r}: give a day as YYYY-MM-DD, e.g. --since 2026-07-01") from None
+    run_build(settings, force=args.force, wait=args.wait, since=since)
     return 0
 
 

@@ -31,6 +31,8 @@ _LIKELY = {
     "duplicate_row": "the same file read twice (check that tables.{table}.path matches each file once)",
     "timestamp_beyond_horizon": "dates in the wrong century or a placeholder date (see checks.future_days / past_years)",
     "value_not_allowed": "codes the config does not map (tables.{table}.values)",
+    "date_outside_partition": "files placed in the wrong order-date folders, or tables.{table}.date_partition naming "
+                              "a key that is not the order date (an export or load date)",
     "duplicate_key": "a key repeated with other values (several versions of a row exported)",
 }
 

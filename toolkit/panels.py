@@ -72,7 +72,7 @@ def build_fingerprint(settings: Settings) -> str:
 
 
 def build(settings: Settings, *, force: bool = False, progress=None, on_check=None, notify=None,
-          wait: float | None = None, command: str | None = None, watcher=None) -> BuildResult:
+          wait: float | None = None, command: str | None = None, watcher=None, since=None) -> BuildResult:
     """Check the export and build every panel into ``panels.duckdb``, in one pass over the files.
 
     Holds the workspace lock throughout (waiting up to ``wait`` seconds, default
@@ -99,6 +99,9 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
     watcher : object, optional
         Told when each step starts and ends (``started(step)``, ``finished(step)``; see
         ``toolkit.steps``): the terminal's progress display.
+    since : datetime.date, optional
+        ``build --since``: check only the order-line files from that day on where that is sound
+        (``toolkit.incremental``); otherwise a full build, and ``notify`` is told why.
 
     Raises
     ------
@@ -132,7 +135,22 @@ def build(settings: Settings, *, force: bool = False, progress=None, on_check=No
                 return BuildResult(skipped=True, rows=published.get("rows", {}), fingerprint=fp, taken_over=taken_over)
             reasons = ["forced (--force)"] if force else freshness.differences(
                 published.get("record") if published else None, record)
-            result = _build(settings, record, fp, track, on_check, command, watcher=watcher, force=force)
+            plan = None
+            if since is not None:
+                from . import incremental
+
+                plan = incremental.plan(settings, since, record)
+                if plan.sound and not plan.new_files:
+                    plan.reasons.append(f"no order-line file lies on or after {plan.since}")
+                say_note = notify or (lambda text: None)
+                say_note(plan.describe() if plan.sound else
+                         f"--since {since}: a full build instead, because " + "; ".join(plan.reasons))
+                plan = plan if plan.sound else None
+            try:
+                result = _build(settings, record, fp, track, on_check, command, watcher=watcher, force=force, plan=plan)
+            except checks.NotIncremental as exc:
+                (notify or (lambda text: None))(f"--since {since}: a full build instead, because {exc}")
+                result = _build(settings, record, fp, track, on_check, command, watcher=watcher, force=force)
             result.reasons, result.taken_over = reasons, taken_over
             return result
         except BaseException as exc:
@@ -182,7 +200,7 @@ class _BuildWatcher:
 
 
 def _build(settings: Settings, record: dict, fp: str, say, on_check, command: str, watcher=None,
-           force: bool = False) -> BuildResult:
+           force: bool = False, plan=None) -> BuildResult:
     """The build proper, under the lock: check (or reuse a fresh one), panels, publish."""
     if settings.economics.margin_rate is None and "products" not in settings.tables:
         warnings.warn(
@@ -198,7 +216,7 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     checked_published = workspace.path(settings, workspace.CHECKED)
     # A check is reused on DuckDB only (the Spark engine checks again: its reuse path is not built).
     spark = getattr(settings.engine, "kind", "duckdb") == "spark"
-    reuse = None if force or spark else checks.reusable(settings, check_fp)
+    reuse = None if force or spark or plan is not None else checks.reusable(settings, check_fp)
     checked_private = None if reuse else workspace.private_path(settings, workspace.CHECKED)
     panels_private = workspace.private_path(settings, workspace.PANELS)
     checked_done = False
@@ -209,7 +227,7 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         if result.check is None:
             checked_private = checked_private or workspace.private_path(settings, workspace.CHECKED)
             result.check = checks.validate(con, settings, checked_path=checked_private, fingerprint=check_fp,
-                                           timings=timings)
+                                           timings=timings, plan=plan)
         checked_done = True
         if on_check is not None:
             on_check(result.check)
@@ -246,6 +264,8 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
             "panel_seconds": result.seconds,
             "steps": result.steps,
             "check_reused_from": result.check.reused_from,
+            "since": None if plan is None else {"day": str(plan.since), "checked_files": len(plan.new_files),
+                                                "kept_files": len(plan.kept_files)},
             "command": command,
             "version": record["version"],
             "record": record,
@@ -275,7 +295,7 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
     workspace.write_state(settings, state)
     workspace.write_manifest(settings, "build", {k: build[k] for k in (
         "fingerprint", "check_fingerprint", "started_at", "finished_at", "seconds", "rows", "steps",
-        "check_reused_from", "command", "version")})
+        "check_reused_from", "since", "command", "version")})
     return result
 
 

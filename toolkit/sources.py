@@ -16,6 +16,7 @@ and not configured get an empty staged view of the same shape.
 from __future__ import annotations
 
 import dataclasses
+import datetime as dt
 import difflib
 import glob
 import warnings
@@ -24,6 +25,7 @@ from pathlib import Path
 
 import duckdb
 
+from . import partitions
 from .config import Settings, TableSettings
 from .contract import INPUT_TABLES, InputTable
 from .engine.duckdb import quote_ident as q
@@ -51,7 +53,29 @@ def _has_glob(path: str) -> bool:
 
 
 def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
-    """The files a table's ``path`` names; raises DataError naming the key when there are none."""
+    """The files a table's ``path`` names, less those a ``[period]`` skips by their date partition.
+
+    Raises ConfigError naming the key when the path matches no file (or the period leaves none).
+    """
+    files = listed_files(settings, table)
+    if not (table.date_partition and settings.period.bounded):
+        return files
+    kept = partitions.prune(files, table.date_partition, settings.period.first_day, settings.period.last_day).files
+    if not kept:
+        raise ConfigError(
+            f"{settings.config_path}: no file of tables.{table.name}.path lies in the period "
+            f"{_period_text(settings)} (by its {'/'.join(table.date_partition)} folders); widen [period] or check "
+            f"tables.{table.name}.date_partition")
+    return kept
+
+
+def _period_text(settings: Settings) -> str:
+    p = settings.period
+    return f"{p.first_day or 'the first line'} to {p.last_day or 'the last line'}"
+
+
+def listed_files(settings: Settings, table: TableSettings) -> list[str]:
+    """Every file a table's ``path`` names; raises ConfigError naming the key when there are none."""
     full = str(settings.resolve(table.path))
     if _has_glob(full):
         files = sorted(glob.glob(full, recursive=True))
@@ -75,11 +99,12 @@ def resolve_files(settings: Settings, table: TableSettings) -> list[str]:
     return files
 
 
-def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[str]) -> str:
-    """A FROM clause reading the files; the file list is bound through a DuckDB variable."""
+def _reader(con: duckdb.DuckDBPyConnection, table: TableSettings, files: list[str], suffix: str = "") -> str:
+    """A FROM clause reading the files; the file list is bound through a DuckDB variable (one per
+    staged table: a Parquet stage is a view, which reads the variable whenever it is queried)."""
     if hasattr(con, "read_files"):  # the Spark engine reads the export itself
         return con.read_files(table, files)
-    var = f"liftlag_files_{table.name}"
+    var = f"liftlag_files_{table.name}{suffix}"
     con.execute(f"SET VARIABLE {var} = ?", [files])
     files_expr = f"getvariable('{var}')"
     if table.format == "parquet":
@@ -288,8 +313,15 @@ def _empty_staged(con: duckdb.DuckDBPyConnection, contract: InputTable) -> None:
     )
 
 
-def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, timings=None) -> dict[str, SourceInfo]:
+def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, timings=None,
+             only_files: dict[str, list[str]] | None = None, tables: tuple[str, ...] | None = None,
+             suffix: str = "") -> dict[str, SourceInfo]:
     """Read every configured table, in one pass, into ``stage_<table>``; define ``staged_<table>``.
+
+    With a ``[period]``, only the order lines dated in it are read (lines whose date is missing or
+    does not parse are read, to be rejected). For an incremental build (``toolkit.incremental``):
+    ``only_files`` reads these files of a table instead of all of them, ``tables`` reads only these
+    tables, and ``suffix`` names the results ``stage_<table><suffix>`` / ``staged_<table><suffix>``.
 
     ``progress`` is called with "reading <table>" before each table is read; ``timings``
     (``toolkit.steps.Timings``) records each read as step "read <table>", with its rows.
@@ -300,13 +332,20 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, 
         A file is missing or empty, cannot be read, or lacks a required column.
     """
     infos: dict[str, SourceInfo] = {}
+    _period_variables(con, settings)
     for name, contract in INPUT_TABLES.items():
+        if tables is not None and name not in tables:
+            continue
         table = settings.tables.get(name)
         if table is None:
+            if name == "transactions":  # never: transactions are required
+                raise ConfigError("[tables.transactions] is missing")
             _empty_staged(con, contract)
             continue
-        files = resolve_files(settings, table)
-        reader = _reader(con, table, files)
+        files = resolve_files(settings, table) if only_files is None or name not in only_files else only_files[name]
+        if name == "transactions" and not suffix:
+            _register_partition_bounds(con, table, files)
+        reader = _reader(con, table, files, suffix)
         described = _describe(con, reader, table, files)
         _duplicate_header(con, table, contract, reader, files)
         found = [c for c, _ in described]
@@ -327,12 +366,13 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, 
         con.execute("SET preserve_insertion_order = true")
         try:
             read_types = {c.name: found_types[table.export_column(c.name)] for c in present}
-            select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy)
+            select = _stage_sql(con, table, contract, reader, read_types, extras, lazy=lazy,
+                                dated=name == "transactions" and settings.period.bounded)
             # On Spark every stage is a table (computed once, its plan cut short): a view's plan is
             # analysed again by every rule that reads it.
             kind = "VIEW" if table.format == "parquet" and not hasattr(con, "read_files") else "TABLE"
-            con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name)} AS {select}")
-            rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name)}")
+            con.execute(f"CREATE OR REPLACE TEMP {kind} {q('stage_' + name + suffix)} AS {select}")
+            rows = scalar(con, f"SELECT count(*) FROM {q('stage_' + name + suffix)}")
         except duckdb.Error as exc:
             if isinstance(exc, duckdb.InterruptException):
                 raise
@@ -340,15 +380,43 @@ def register(con: duckdb.DuckDBPyConnection, settings: Settings, progress=None, 
             raise DataError(f"table {name}: cannot read {where}: {read_hint(exc, table)}") from None
         finally:
             con.execute("SET preserve_insertion_order = false")
-        _define_staged_view(con, contract, extras, lazy=lazy)
+        _define_staged_view(con, contract, extras, lazy=lazy, suffix=suffix)
         if step is not None:
             timings.end(step, rows=int(rows))
         infos[name] = SourceInfo(name, tuple(files), int(rows), tuple(found), tuple(extras))
     return infos
 
 
+def _period_variables(con, settings: Settings) -> None:
+    """``liftlag_period_from`` / ``liftlag_period_before``: the period's first day and the day after
+    its last (NULL when open), as timestamps."""
+    p = settings.period
+    con.execute("SET VARIABLE liftlag_period_from = ?", [_midnight(p.first_day)])
+    con.execute("SET VARIABLE liftlag_period_before = ?",
+                [_midnight(p.last_day + dt.timedelta(days=1)) if p.last_day else None])
+
+
+def _midnight(day):
+    return None if day is None else dt.datetime.combine(day, dt.time())
+
+
+def _register_partition_bounds(con, table: TableSettings, files: list[str]) -> None:
+    """``partition_bounds``: each dated file's first and last day (rule ``date_outside_partition``)."""
+    frame = partitions.bounds_frame(files, table.date_partition) if table.date_partition else None
+    if frame is None or frame.empty:
+        con.execute("CREATE OR REPLACE TEMP TABLE partition_bounds AS SELECT CAST(NULL AS VARCHAR) AS _source_file, "
+                    "CAST(NULL AS DATE) AS first_day, CAST(NULL AS DATE) AS last_day WHERE false")
+        return
+    con.register("partition_bounds_frame", frame)
+    try:
+        con.execute("CREATE OR REPLACE TEMP TABLE partition_bounds AS SELECT CAST(_source_file AS VARCHAR) AS _source_file, "
+                    "CAST(first_day AS DATE) AS first_day, CAST(last_day AS DATE) AS last_day FROM partition_bounds_frame")
+    finally:
+        con.unregister("partition_bounds_frame")
+
+
 def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, present: dict[str, str], extras: list[str],
-               lazy: bool = False) -> str:
+               lazy: bool = False, dated: bool = False) -> str:
     """One pass over the files: typed columns plus the facts the checks need.
 
     ``present`` maps each contract column found to the DuckDB type it was read with. Text is
@@ -392,6 +460,12 @@ def _stage_sql(con, table: TableSettings, contract: InputTable, reader: str, pre
            "file_row_number + 1 AS _file_row, ") if lazy else ""
     read = f"SELECT {key}_source_file, {', '.join(renamed)} FROM {reader}"
     typed = f"SELECT *, {', '.join(typed_cols + extra_cols)} FROM ({read})"
+    if dated:
+        # [period]: lines dated outside it are not read; a line whose date is missing
+        # or does not parse is read, to be rejected for that.
+        typed = (f"SELECT * FROM ({typed}) WHERE ordered_at IS NULL OR ("
+                 f"(getvariable('liftlag_period_from') IS NULL OR ordered_at >= getvariable('liftlag_period_from')) AND "
+                 f"(getvariable('liftlag_period_before') IS NULL OR ordered_at < getvariable('liftlag_period_before')))")
     facts = (f"SELECT *, {missing} AS _missing, {unparseable} AS _unparseable, "
              f"{unparseable_optional} AS _unparseable_optional FROM ({typed})")
     problem = (f"SELECT *, CASE WHEN _missing <> '' OR _unparseable <> '' OR _unparseable_optional <> '' "
@@ -428,7 +502,7 @@ def _values_where(conditions: list[tuple[str, str, str]]) -> str:
     return f"CASE WHEN {any_holds} THEN concat_ws(', ', {parts}) ELSE '' END"
 
 
-def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool = False) -> None:
+def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool = False, suffix: str = "") -> None:
     """``staged_<table>``: the stage with its row key, its row in the file, a row hash and the
     values as text."""
     names = [c.name for c in contract.columns] + list(extras)
@@ -436,9 +510,9 @@ def _define_staged_view(con, contract: InputTable, extras: list[str], lazy: bool
     as_text = f"CAST(struct_pack({', '.join(f'{q(n)} := {q(n)}' for n in names)}) AS VARCHAR)"
     keys = "_row_key AS _row_id, _file_row" if lazy else "CAST(rowid + 1 AS BIGINT) AS _row_id, rowid + 1 AS _file_row"
     con.execute(
-        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name)} AS SELECT {keys}, "
+        f"CREATE OR REPLACE TEMP VIEW {q('staged_' + contract.name + suffix)} AS SELECT {keys}, "
         f"_source_file, {cols}, _missing, _unparseable, _unparseable_optional, _row_hash, "
-        f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name)}"
+        f"coalesce(_raw_problem, {as_text}) AS _raw_values FROM {q('stage_' + contract.name + suffix)}"
     )
 
 

@@ -16,6 +16,7 @@ EXPECTED_CONFIG = {
     "tables": {
         "transactions": {
             "path": "transactions/**/*.parquet",
+            "date_partition": "month",
             "columns": {
                 "order_id": "basket_no",
                 "customer_id": "shopper_ref",

@@ -175,6 +175,7 @@ MESSY_TRANSACTIONS = TINY_TRANSACTIONS + [
     ["o21", "c2", "2026-03-06 10:00:00", "p1", "-1", "5", "10", "0", ""],          # return_sign_mismatch
     ["o18", "c1", "2026-03-06 10:00:00", "p1", "1", "12", "10", "0", ""],          # net_above_list
     ["o19", "c3", "2026-03-07 10:00:00", "p2", "1", "nan", "10", "0", ""],         # NaN is no amount
+    ["o22", "c2", "2025-12-30 10:00:00", "p1", "1", "10", "10", "0", ""],          # date_outside_partition (_messy)
 ]
 MESSY_PROMOTIONS = TINY_PROMOTIONS + [
     ["PA", "2026-04-01", "2026-04-08", "percent_off", "0.3", "targeted", "again"],  # duplicate_key
@@ -191,8 +192,15 @@ MESSY_PRODUCTS = TINY_PRODUCTS + [["p1", "tools", "5"], ["p3", "tools", "abc"]] 
 
 
 def _messy(folder: Path, promotions) -> Path:
-    return write_export(folder, transactions=MESSY_TRANSACTIONS, promotions=promotions,
-                        assignments=MESSY_ASSIGNMENTS, customers=MESSY_CUSTOMERS, products=MESSY_PRODUCTS)
+    """The messy export, its order lines filed under year=2026/ (tables.transactions.date_partition)."""
+    config = write_export(folder, transactions=MESSY_TRANSACTIONS, promotions=promotions,
+                          assignments=MESSY_ASSIGNMENTS, customers=MESSY_CUSTOMERS, products=MESSY_PRODUCTS)
+    year = folder / "transactions" / "year=2026"
+    year.mkdir(parents=True)
+    (folder / "transactions.csv").rename(year / "transactions.csv")
+    config.write_text(config.read_text().replace(
+        'path = "transactions.csv"', 'path = "transactions/**/*.csv"\ndate_partition = "year"'))
+    return config
 
 
 def test_messy_export_every_rule_fires_and_both_engines_agree(spark_session, tmp_path):

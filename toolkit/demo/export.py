@@ -24,6 +24,7 @@ TRUTH_FILES = ("truth.json", "truth_uplift.parquet")
 _CONFIG_TEMPLATE = """\
 [tables.transactions]
 path = "transactions/**/*.parquet"
+date_partition = "month"  # files lie in month=YYYY-MM/ folders by order date: [period] and build --since skip by them
 [tables.transactions.columns]
 order_id = "basket_no"
 customer_id = "shopper_ref"

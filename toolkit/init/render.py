@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 
 from ..contract import INPUT_TABLES
+from ..partitions import guess_keys
 from .guess import TableGuess
 
 
@@ -58,6 +59,14 @@ def render_config(guesses: dict[str, TableGuess], passed_over: dict | None = Non
         path_line, path_report = _path_line(tg)
         lines += [f"[tables.{table}]", path_line]
         report.append(path_report)
+        if table == "transactions":
+            keys = guess_keys(tg.candidate.files)
+            if keys:
+                value = _toml_string(keys[0]) if len(keys) == 1 else "[" + ", ".join(_toml_string(k) for k in keys) + "]"
+                why = (f"the files lie in {'/'.join(k + '=...' for k in keys)} folders that read as dates; keep it "
+                       f"only if that is the ORDER date (not an export or load date): files are then skipped by date")
+                lines.append(f"date_partition = {value}  {_mark(False, why)}")
+                report.append(f"  date_partition <- {'/'.join(keys)} (NOT SURE: is it the order date?)")
         mapping = [(c.name, tg.columns[c.name]) for c in contract.columns if c.name in tg.columns]
         renamed = [(c, g) for c, g in mapping if g.column != c]
         if renamed:
