@@ -25,6 +25,9 @@ def con(spark_session):
         sources._empty_staged(con, table)
     for statement in sources.staged_union_sql():
         con.execute(statement)
+    from toolkit.config import TableSettings
+
+    sources._register_partition_bounds(con, TableSettings("transactions", "x", "parquet"), [])  # no dated folders
     for column, allowed in (("arm", contract.ARMS), ("mechanic", contract.MECHANICS), ("audience", contract.AUDIENCES)):
         con.execute(f"SET VARIABLE allowed_{column} = ?", [list(allowed)])
         con.execute(f"SET VARIABLE allowed_{column}_text = ?", [", ".join(allowed)])
