@@ -7,7 +7,7 @@
 2. The folders are put back and ``liftlag build --since SINCE`` runs: it checks only the new
    folders and keeps the earlier files' verdicts.
 3. ``liftlag build --force`` of the same export in a second workspace: the full build it replaces.
-4. Both workspaces' panels and checked tables are compared (floats to 1e-9).
+4. Both workspaces' panels and checked tables are compared (floats to 9 decimals and 12 significant digits).
 
 Each build runs under ``/usr/bin/time -v`` (wall, CPU, peak RSS). A row goes to
 ``bench/since_results.md``. The export is left as it was found.
@@ -61,7 +61,8 @@ def tables(panels: Path) -> dict:
         for schema, table in con.execute("SELECT schema_name, table_name FROM duckdb_tables() "
                                          "WHERE schema_name IN ('main', 'checked') ORDER BY 1, 2").fetchall():
             cols = [r[0] for r in con.execute(f'DESCRIBE {schema}."{table}"').fetchall()]
-            exprs = ", ".join(f'round("{c}", 9)' if t in ("DOUBLE", "FLOAT") else f'"{c}"'
+            # floats to 9 decimals and 12 significant digits: a sum in another order differs in the last bits
+            exprs = ", ".join(f"printf('%.12g', round(\"{c}\", 9) + 0.0)" if t in ("DOUBLE", "FLOAT") else f'"{c}"'
                               for c, t in con.execute(f'SELECT column_name, data_type FROM duckdb_columns() '
                                                       f"WHERE schema_name = '{schema}' AND table_name = '{table}'").fetchall())
             out[f"{schema}.{table}"] = con.execute(
@@ -103,8 +104,10 @@ def main(argv: list[str] | None = None) -> int:
     full = timed([_liftlag(), "build", "-c", str(full_cfg), "--force"])
     a, b = tables(ws / "panels.duckdb"), tables(args.export / ".liftlag_full" / "panels.duckdb")
     differ = sorted(k for k in a.keys() | b.keys() if a.get(k) != b.get(k))
-    lines = duckdb.sql(f"SELECT count(*) FROM read_parquet('{tx}/**/*.parquet')").fetchone()[0]
-    new_lines = duckdb.sql(f"SELECT count(*) FROM read_parquet({[str(p / '*.parquet') for p in new]})").fetchone()[0]
+    counter = duckdb.connect()
+    lines = counter.execute(f"SELECT count(*) FROM read_parquet('{tx}/**/*.parquet')").fetchone()[0]
+    new_lines = counter.execute("SELECT count(*) FROM read_parquet(?)", [[str(p / "*.parquet") for p in new]]).fetchone()[0]
+    counter.close()
     commit = subprocess.run(["git", "-C", str(HERE.parent), "rev-parse", "--short", "HEAD"],
                             capture_output=True, text=True).stdout.strip()
     row = (f"| {dt.datetime.now(dt.timezone.utc):%Y-%m-%d %H:%M} | {lines:,} | {since} | {new_lines:,} | "

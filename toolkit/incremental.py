@@ -13,14 +13,17 @@ the files of earlier days stay as they were. A build with ``--since DAY`` then
   read each customer's whole history, so a line from DAY on changes rows dated before it.
 
 When that is not sound, a full build runs instead and says why (``Plan.reasons``): no date
-partition configured, no earlier build, another config, rules or code, a file before DAY changed,
-added or removed, a file with no days in its folder names, an earlier build without per-file
-counts, or a promotion that earlier lines were checked against changed (checked after the rules,
-``promotions_unchanged``). A file whose days straddle DAY is checked again, with DAY moved back to
+partition configured, no earlier build, another config, rules or code, a table added or removed,
+a file before DAY changed, added or removed, a file with no days in its folder names, an earlier
+build without per-file counts, or a promotion that earlier lines were checked against changed
+(checked after the rules, ``checks._promotions_unchanged``). The small tables may otherwise change
+(new campaigns bring new promotions and assignments): they are checked in full, and of them only
+the promotions bear on an order line's verdict. A file whose days straddle DAY is checked again, with DAY moved back to
 its first day. The Spark engine always builds in full (its check is not reused either).
 
-What a kept verdict does not see: the horizon rule runs on the lines as they were checked (a line
-does not cross ``checks.past_years`` between two builds in practice), and a new line that copies a
+What a kept verdict does not see: the rules relative to the moment of the check run on the lines
+as they were checked (a line does not cross ``checks.past_years`` between two builds in practice,
+and a line warned as ``future_timestamp`` then stays warned), and a new line that copies a
 line of an earlier file exactly is not a duplicate (a duplicate has the same order date, so it
 lies in the same folder unless that folder is misfiled, which ``date_outside_partition`` rejects).
 """
@@ -89,9 +92,11 @@ def plan(settings: Settings, since: dt.date, record: dict) -> Plan:
                       ("panels", "the panel SQL or its settings")):
         if old.get(key) != record.get(key):
             result.reasons.append(f"{what} changed since the last build")
-    for name in sorted(set(old.get("inputs", {})) | set(record["inputs"])):
-        if name not in ("transactions", "promotions") and old.get("inputs", {}).get(name) != record["inputs"].get(name):
-            result.reasons.append(f"the {name} files changed since the last build")
+    # The small tables (promotions, assignments, customers, products) may change: they are checked
+    # again in full, and of them only the promotions bear on an order line's verdict (checked in
+    # checks._promotions_unchanged). Whether a table is configured at all must not change.
+    for name in sorted(set(old.get("inputs", {})) ^ set(record["inputs"])):
+        result.reasons.append(f"tables.{name} was {'added' if name in record['inputs'] else 'removed'} since the last build")
     if result.reasons:
         return result
     files = sources.resolve_files(settings, table)

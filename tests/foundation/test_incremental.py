@@ -4,7 +4,7 @@ The demo export is partitioned by month (``transactions/month=YYYY-MM/``). Fault
 planted in an early month and in the month that arrives last: an exact copy of a line
 (``duplicate_row``), a line filed under the wrong month (``date_outside_partition``) and a return
 line with a positive amount (the ``return_sign_mismatch`` warning). A workspace built before the
-last month arrived, then built with ``--since``, must hold the same panels, rejected rows and
+last month (and a new campaign's promotion and assignments) arrived, then built with ``--since``, must hold the same panels, rejected rows and
 counts as a workspace built in full from the whole export (the accounting invariant included).
 """
 
@@ -62,15 +62,15 @@ def _settings(export: Path, ws: Path):
 
 
 def _tables(settings) -> dict[str, list[tuple]]:
-    """Every panel and every checked table of a workspace, rows sorted, floats to 1e-9 (a sum over
-    the same values in another order differs in the last bits)."""
+    """Every panel and every checked table of a workspace, rows sorted, floats to 9 decimals and 12
+    significant digits (a sum over the same values in another order differs in the last bits)."""
     con = duckdb.connect(str(workspace.path(settings, workspace.PANELS)), read_only=True)
     try:
         names = con.execute("SELECT schema_name, table_name FROM duckdb_tables() WHERE schema_name IN "
                             "('main', 'checked') ORDER BY 1, 2").fetchall()
         out = {}
         for schema, table in names:
-            rows = [tuple(round(v, 9) if isinstance(v, float) else v for v in row)  # sums in another order
+            rows = [tuple(float(f"{round(v, 9):.12g}") + 0.0 if isinstance(v, float) else v for v in row)  # sums in another order
                     for row in con.execute(f'SELECT * FROM {schema}."{table}"').fetchall()]
             out[f"{schema}.{table}"] = sorted(rows, key=repr)
         return out
@@ -83,6 +83,11 @@ def test_a_since_build_equals_a_full_build_of_the_grown_export(grown_export, tmp
     inc = _settings(export, tmp_path / "ws_inc")
     panels.build(inc)
     shutil.move(held, export / "transactions" / LAST)
+    # A new campaign arrives with the new month: a promotion and its assignments.
+    with (export / "promotions.csv").open("a") as fh:
+        fh.write("FW-T99,2026-09-14,2026-09-20,percent_off,0.15,targeted,0.4,Autumn bulbs 15% off\n")
+    with (export / "assignments.csv").open("a") as fh:
+        fh.write("FW-T99,FW100001,T,2026-09-12 06:00:00\nFW-T99,FW100005,H,2026-09-12 06:00:00\n")
     notes: list[str] = []
     result = panels.build(inc, since=__import__("datetime").date(2026, 9, 1), notify=notes.append)
     assert notes and "checking 2 order-line file(s)" in notes[0], notes  # the plan was sound: 2 files checked
@@ -128,3 +133,25 @@ def test_without_a_date_partition_since_builds_in_full(tmp_path):
     result = panels.build(settings, force=True, since=__import__("datetime").date(2026, 9, 1), notify=notes.append)
     assert "date_partition is not set" in notes[0]
     assert not result.skipped and result.rows["orders"] > 0
+
+
+def test_a_changed_promotion_found_after_the_rules_makes_a_full_build(grown_export, tmp_path):
+    """Earlier lines were checked against a promotion whose depth is now another: their warnings
+    may differ, so the build starts again in full (``NotIncremental``)."""
+    export, held = grown_export
+    inc = _settings(export, tmp_path / "ws_inc")
+    panels.build(inc)
+    shutil.move(held, export / "transactions" / LAST)
+    promotions = export / "promotions.csv"
+    promotions.write_text(promotions.read_text().replace("FW-T01,2025-02-17,2025-02-26,percent_off,0.1,",
+                                                         "FW-T01,2025-02-17,2025-02-26,percent_off,0.12,"))
+    notes: list[str] = []
+    result = panels.build(inc, since=__import__("datetime").date(2026, 9, 1), notify=notes.append)
+    assert "checking 2 order-line file(s)" in notes[0]  # the plan looked sound ...
+    assert "a full build instead, because a promotion" in notes[1], notes  # ... until the promotions were read
+    assert workspace.published_build(inc)["since"] is None
+    full = _settings(export, tmp_path / "ws_full")
+    panels.build(full)
+    assert _tables(inc) == _tables(full)
+    assert result.check.summary.set_index("table").loc["transactions"].rows_read == \
+        sum(r[4] for r in _tables(full)["checked.file_counts"] if r[2] == "_read")
