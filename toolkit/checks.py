@@ -82,6 +82,7 @@ class CheckResult:
     steps: list[dict] = field(default_factory=list)  # per step: step, seconds, rows (toolkit.steps)
     checked_at: str = ""  # the moment the rules ran (UTC, ISO): the horizon and "the future" are relative to it
     reused_from: str | None = None  # a build that reused this check (toolkit.checks.reuse): when it ran
+    notes: list[str] = field(default_factory=list)  # what was read, when a [period] or --since narrowed it
 
     @property
     def usable(self) -> bool:
@@ -335,10 +336,9 @@ def validate(con, settings: Settings, progress=None, *, checked_path: Path | Non
     with timings.step("examples of rejected rows"):
         examples = _examples(con)
     rejects = con.execute("SELECT * FROM rejects_summary_df").df()
-    warnings = con.execute(
-        "SELECT table_name AS \"table\", rule, count(*) AS rows FROM warned GROUP BY ALL ORDER BY 1, 2"
-    ).df()
-    result = CheckResult(summary, rejects, warnings, problems, fp, 0.0, examples, checked_at=now.isoformat())
+    warnings = con.execute(_warnings_summary_sql(kept=plan is not None)).df()
+    result = CheckResult(summary, rejects, warnings, problems, fp, 0.0, examples, checked_at=now.isoformat(),
+                         notes=_read_notes(settings, infos, plan, summary))
     target = checked_path or workspace.private_path(settings, workspace.CHECKED)
     with timings.step("writing checked tables") as step:
         try:
@@ -522,14 +522,7 @@ def _write_rejects(con, kept: bool = False) -> int:
         parts.append("SELECT * FROM kept_rejected")
     con.execute("CREATE TABLE out.rejected_rows AS " + " UNION ALL ".join(parts))
     con.execute("CREATE TABLE out.rejects_summary AS SELECT * FROM rejects_summary_df")
-    warned_counts = "SELECT table_name, rule, count(*) AS rows FROM warned GROUP BY 1, 2"
-    if kept:
-        warned_counts += (" UNION ALL SELECT table_name, rule, rows FROM kept_counts "
-                          "WHERE NOT starts_with(rule, '_') AND severity = 'warn'")
-    con.execute(
-        "CREATE TABLE out.warnings_summary AS SELECT table_name AS \"table\", rule, CAST(sum(rows) AS BIGINT) AS rows "
-        f"FROM ({warned_counts}) GROUP BY 1, 2 ORDER BY 1, 2"
-    )
+    con.execute("CREATE TABLE out.warnings_summary AS " + _warnings_summary_sql(kept))
     examples = ("SELECT w.table_name, s._file_row AS row_id, s._source_file AS source_file, w.rule, w.detail, "
                 "0 AS part, w._row_id AS place FROM warned AS w INNER JOIN staged_all_sources AS s "
                 "ON w.table_name = s.table_name AND w._row_id = s._row_id")
@@ -542,6 +535,37 @@ def _write_rejects(con, kept: bool = False) -> int:
         f"FROM ({examples})) WHERE n <= {WARNING_EXAMPLES}"
     )
     return int(scalar(con, "SELECT count(*) FROM out.rejected_rows"))
+
+
+def _warnings_summary_sql(kept: bool = False) -> str:
+    """Rows warned about per table and rule (with the earlier files' counts in a ``--since`` build)."""
+    counts = "SELECT table_name, rule, count(*) AS rows FROM warned GROUP BY 1, 2"
+    if kept:
+        counts += (" UNION ALL SELECT table_name, rule, rows FROM kept_counts "
+                   "WHERE NOT starts_with(rule, '_') AND severity = 'warn'")
+    return (f"SELECT table_name AS \"table\", rule, CAST(sum(rows) AS BIGINT) AS rows FROM ({counts}) "
+            f"GROUP BY 1, 2 ORDER BY 1, 2")
+
+
+def _read_notes(settings: Settings, infos: dict, plan, summary: pd.DataFrame) -> list[str]:
+    """What the check read, when a [period] or ``--since`` narrowed it (printed under its table)."""
+    notes = []
+    table = settings.tables["transactions"]
+    if settings.period.bounded:
+        p = settings.period
+        listed = sources.listed_files(settings, table)
+        read = infos["transactions"].files
+        how = (f"{len(listed) - len(read)} of {len(listed)} files skipped by their {'/'.join(table.date_partition)} "
+               f"folders" if table.date_partition else
+               f"all {len(listed)} files read and filtered (tables.transactions.date_partition would skip files)")
+        notes.append(f"[period] {p.first_day or 'the first line'} to {p.last_day or 'the last line'}: order lines "
+                     f"dated outside it are not read; {how}")
+    if plan is not None:
+        new = infos["transactions"].rows
+        total = int(summary.loc[summary["table"] == "transactions", "rows_read"].iloc[0])
+        notes.append(f"build --since {plan.since}: {new:,} order lines of {len(plan.new_files)} file(s) checked now; "
+                     f"{total - new:,} order lines of {len(plan.kept_files)} earlier file(s) keep the last build's verdicts")
+    return notes
 
 
 def _write_file_counts(con, kept: bool = False) -> None:

@@ -98,6 +98,8 @@ def print_check(result) -> None:
             continue
         table.add_row(escape(row.table), f"{row.rows_read:,}", f"{row.accepted:,}", f"{row.rejected:,}", f"{row.warnings:,}")
     console.print(table)
+    for note in getattr(result, "notes", []):
+        console.print(f"[yellow]note:[/] {escape(note)}")
     if len(result.rejects):
         rej = Table(title="rejected rows by reason (details in the workspace: checked.duckdb, rejected_rows)")
         for col in ("table", "reason", "rows"):

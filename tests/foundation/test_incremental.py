@@ -95,7 +95,11 @@ def test_a_since_build_equals_a_full_build_of_the_grown_export(grown_export, tmp
     assert record["since"]["kept_files"] > 20 and record["since"]["checked_files"] == 2
 
     full = _settings(export, tmp_path / "ws_full")
-    panels.build(full)
+    full_result = panels.build(full)
+    # What the terminal shows: the same counts, and a note of what was checked now.
+    assert result.check.warnings.equals(full_result.check.warnings)
+    assert result.check.summary.equals(full_result.check.summary)
+    assert any("order lines of 2 file(s) checked now" in n for n in result.check.notes)
     got, want = _tables(inc), _tables(full)
     assert got.keys() == want.keys()
     for name in want:

@@ -77,6 +77,7 @@ def test_a_period_reads_only_its_lines_and_skips_files_outside_it(tmp_path, date
     result = checks.run(settings)
     row = result.summary.set_index("table").loc["transactions"]
     assert row.rows_read == _raw_count("2026-01-01", "2026-03-15") > 0
+    assert ("18 of 21 files skipped by their month folders" if date_partition else "all 21 files read") in result.notes[0]
     assert row.accepted + row.rejected == row.rows_read
     panels.build(settings)
     con = workspace.connect(settings)
