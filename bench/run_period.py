@@ -22,7 +22,7 @@ import sys
 from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
-from run_since import _liftlag, timed  # noqa: E402
+from run_since import _liftlag, append_row, timed  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 RESULTS = HERE / "period_results.md"
@@ -62,14 +62,10 @@ def main(argv: list[str] | None = None) -> int:
            f"{kept} of {files_all} | {p['wall']:.1f} / {p['cpu']:.1f} / {p['rss_mb']:,.0f} | "
            f"{files_all} of {files_all} | {f['wall']:.1f} / {f['cpu']:.1f} / {f['rss_mb']:,.0f} | "
            f"{p['lines']:,} / {f['lines']:,} | load {load:.2f}, {commit} |")
-    if not RESULTS.exists():
-        RESULTS.write_text(
-            "# [period] with and without partition pruning\n\n`bench/run_period.py EXPORT FIRST_DAY` (see its "
-            "docstring): a cold `liftlag check`. Cells: wall s / CPU s / peak RSS MB.\n\n"
-            "| date (UTC) | export | first_day | files read, pruned | check, pruned | files read, not pruned | "
-            "check, not pruned | lines read (pruned / not) | notes |\n|---|---|---|---|---|---|---|---|---|\n")
-    with RESULTS.open("a") as fh:
-        fh.write(row + "\n")
+    append_row(RESULTS, "# [period] with and without partition pruning\n\n`bench/run_period.py EXPORT FIRST_DAY` "
+               "(see its docstring): a cold `liftlag check`. Cells: wall s / CPU s / peak RSS MB.",
+               ["date (UTC)", "export", "first_day", "files read, pruned", "check, pruned", "files read, not pruned",
+                "check, not pruned", "lines read (pruned / not)", "notes"], row)
     print(row)
     return 0 if p["lines"] == f["lines"] else 1
 

@@ -54,6 +54,14 @@ def timed(args: list[str]) -> dict:
             "rss_mb": field("Maximum resident set size (kbytes)") / 1024, "out": proc.stdout + err}
 
 
+def append_row(path: Path, intro: str, columns: list[str], row: str) -> None:
+    """Append a table row to a results file, writing its title and header first when it is new."""
+    if not path.exists():
+        path.write_text(f"{intro}\n\n| {' | '.join(columns)} |\n|{'---|' * len(columns)}\n")
+    with path.open("a") as fh:
+        fh.write(row + "\n")
+
+
 def tables(panels: Path) -> dict:
     con = duckdb.connect(str(panels), read_only=True)
     try:
@@ -115,14 +123,10 @@ def main(argv: list[str] | None = None) -> int:
            f"{since_run['wall']:.1f} / {since_run['cpu']:.1f} / {since_run['rss_mb']:,.0f} | "
            f"{full['wall']:.1f} / {full['cpu']:.1f} / {full['rss_mb']:,.0f} | "
            f"{'same' if not differ else 'DIFFER: ' + ', '.join(differ)} | load {load:.2f}, {commit} |")
-    if not RESULTS.exists():
-        RESULTS.write_text(
-            "# build --since against a full build\n\n`bench/run_since.py EXPORT SINCE` (see its docstring). "
-            "Each cell: wall s / CPU s / peak RSS MB.\n\n"
-            "| date (UTC) | order lines | since | new lines | build before the new months | build --since | "
-            "build --force (full) | tables | notes |\n|---|---|---|---|---|---|---|---|---|\n")
-    with RESULTS.open("a") as fh:
-        fh.write(row + "\n")
+    append_row(RESULTS, "# build --since against a full build\n\n`bench/run_since.py EXPORT SINCE` (see its "
+               "docstring). Each cell: wall s / CPU s / peak RSS MB.",
+               ["date (UTC)", "order lines", "since", "new lines", "build before the new months", "build --since",
+                "build --force (full)", "tables", "notes"], row)
     print(note)
     print(row)
     return 0 if not differ else 1
