@@ -12,7 +12,9 @@ tree with ``wait4``, whose resource usage is the kernel's own final account of t
 user + system to the tick, ``ru_maxrss`` = its peak resident set), including the children it
 reaped itself. Each process is named by its ``/proc/PID/comm`` read before it is reaped (the JVM
 is ``java``; ``spark-submit``'s bash ``exec``s into it, and its short-lived launcher JVM is counted
-in it). Standard library only; Linux only.
+in it). A process's figures include the children it reaped itself: the JVM's include the Python
+workers it starts for the session's Python UDF (``pyspark.daemon``). Standard library only; Linux
+only.
 
 Printed lines (and with ``--json``, one object): wall seconds, then per process name: CPU user +
 system seconds, the largest peak RSS among processes of that name, how many there were.

@@ -20,6 +20,9 @@ serve both engines. What is DuckDB-only in those calls is handled here:
   gzipped CSV, each row keyed by its file's place in the sorted file list and its row in the
   file, as the DuckDB source layer keys it.
 
+``open_workspace`` gives the analyses' SQL (``liftlag timing``) the published tables as views, and
+makes its cursors private as DuckDB's are (a cursor's temporary tables are its own).
+
 The session is pinned to UTC, reads timestamps without a zone as ``TIMESTAMP_NTZ`` and runs with
 ANSI mode off (a failed cast is null, as DuckDB's TRY_CAST). One session serves the process.
 """
