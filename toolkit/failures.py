@@ -160,12 +160,26 @@ def describe(exc: BaseException, args=None) -> Failure:
         return _describe_duckdb(exc, args)
     if isinstance(exc, OSError):
         return _describe_os(exc, args)
+    if _is_spark_out_of_memory(exc):
+        return Failure(
+            "Spark ran out of memory; give it more with [engine.spark_conf] \"spark.driver.memory\" (in local mode "
+            "the driver does all the work; Spark's default is 1g, and 10M order lines need about 4g), or run on a "
+            "cluster", 1)
     if isinstance(exc, MemoryError):
         return Failure("out of memory; set [engine] memory_limit below the machine's memory so DuckDB spills to "
                        "temp_directory, or run on a larger machine", 1)
     return Failure(
         f"internal error ({type(exc).__name__}: {exc}); this is a liftlag bug: please report it with the command "
         f"you ran (LIFTLAG_DEBUG=1 shows the traceback)", 1)
+
+
+def _is_spark_out_of_memory(exc: BaseException) -> bool:
+    """A Spark job that failed for want of memory (py4j's error carries the JVM's error as text)."""
+    if type(exc).__name__ not in ("Py4JJavaError", "SparkRuntimeException", "PySparkRuntimeError"):
+        return False
+    text = str(exc)
+    return any(mark in text for mark in ("SparkOutOfMemoryError", "java.lang.OutOfMemoryError",
+                                         "UNABLE_TO_ACQUIRE_MEMORY"))
 
 
 def _is_markup_error(exc: BaseException) -> bool:

@@ -20,6 +20,9 @@ serve both engines. What is DuckDB-only in those calls is handled here:
   gzipped CSV, each row keyed by its file's place in the sorted file list and its row in the
   file, as the DuckDB source layer keys it.
 
+``open_workspace`` gives the analyses' SQL (``liftlag timing``) the published tables as views, and
+makes its cursors private as DuckDB's are (a cursor's temporary tables are its own).
+
 The session is pinned to UTC, reads timestamps without a zone as ``TIMESTAMP_NTZ`` and runs with
 ANSI mode off (a failed cast is null, as DuckDB's TRY_CAST). One session serves the process.
 """
@@ -41,6 +44,7 @@ from ..errors import ConfigError, DataError
 from .transpile import parse_duckdb, to_spark
 
 _SESSION = None
+_CURSORS = 0  # private cursors made so far (their views' names are numbered)
 STARTUP_SECONDS: float | None = None  # how long the process's session took to start
 
 # Spark settings the engine relies on; [engine.spark_conf] may add others but not change these.
@@ -76,6 +80,10 @@ def session(master: str = "local[*]", conf: dict | None = None):
         raise ConfigError("[engine] kind = \"spark\" needs pyspark: pip install 'liftlag[spark]'") from None
     if _SESSION is not None:
         return _SESSION
+    java_home = os.environ.get("JAVA_HOME")
+    if not (java_home and os.path.isfile(os.path.join(java_home, "bin", "java"))) and shutil.which("java") is None:
+        raise ConfigError("[engine] kind = \"spark\" needs a Java runtime (Java 17) on PATH or in JAVA_HOME, "
+                          "e.g. apt-get install openjdk-17-jre-headless; or set [engine] kind = \"duckdb\"")
     os.environ.setdefault("PYSPARK_PYTHON", sys.executable)  # Python UDFs run in this interpreter
     import time
 
@@ -165,26 +173,52 @@ class SparkConnection:
         self._appended: dict[str, list] = {}  # INSERT INTO: the table's first frame, then each insert
         self._parent = None
         self._read_copy: Path | None = None  # open_workspace: the published tables as Parquet
+        # With private_cursors (open_workspace), each cursor's temporary tables and registered
+        # frames are its own, as a DuckDB cursor's: kept under a private name (``_own``) that
+        # only this cursor's statements read; the connection's own views are shared by all.
+        self.private_cursors = False
+        self._own: dict[str, str] | None = None
 
     # -- the DuckDB-like surface ----------------------------------------------------------------
     def cursor(self) -> "SparkConnection":
-        """Another handle on the same session and temporary views (Spark has one catalog)."""
+        """Another handle on the same session and temporary views (Spark has one catalog); with
+        ``private_cursors``, the temporary tables it makes are its own (dropped by its ``close()``)."""
+        global _CURSORS
         other = SparkConnection.__new__(SparkConnection)
         other.__dict__.update(self.__dict__)
         other.variables = dict(self.variables)
         other._parent = self
+        if self.private_cursors:
+            _CURSORS += 1
+            other._own = {}
+            other._tag = _CURSORS
         return other
+
+    def _target(self, name: str) -> str:
+        """The view name a temporary table ``name`` made on this handle goes under."""
+        if self._own is None:
+            return name
+        private = self._own.setdefault(name, f"{name}__cursor{self._tag}")
+        return private
 
     def register(self, name: str, frame: pd.DataFrame) -> None:
         sdf = self.spark.createDataFrame(frame) if len(frame) else self._empty_like(frame)
+        name = self._target(name)
         sdf.createOrReplaceTempView(name)
         self._views.add(name)
 
     def unregister(self, name: str) -> None:
+        if self._own is not None and name in self._own:
+            self._drop(self._own.pop(name))
+            return
         self._drop(name)
 
     def close(self) -> None:
         if self._parent is not None:
+            for private in (self._own or {}).values():
+                self._drop(private)
+            if self._own:
+                self._own.clear()
             return
         for name in list(self._views):
             self._drop(name)
@@ -197,6 +231,9 @@ class SparkConnection:
 
     def sql(self, text: str):
         """A Spark DataFrame of one DuckDB SELECT (values bound)."""
+        if self._own:
+            trees = parse_duckdb(text)
+            return self.spark.sql(to_spark(self._unqualify(trees[0]), self.variables))
         return self.spark.sql(to_spark(text, self.variables))
 
     def execute(self, sql: str, params: list | None = None) -> _Result:
@@ -249,8 +286,17 @@ class SparkConnection:
         return _Result(rows=[])
 
     def _unqualify(self, tree: exp.Expression) -> exp.Expression:
-        """``out.name`` / ``out.main.name`` (an attached output) read the table written there."""
+        """``out.name`` / ``out.main.name`` (an attached output) read the table written there; a
+        name this cursor made privately reads its private view."""
+        own = self._own or {}
+        ctes = {cte.alias for cte in tree.find_all(exp.CTE)} if own else set()
+
         def replace(node):
+            if (own and isinstance(node, exp.Table) and node.args.get("db") is None and node.name in own
+                    and node.name not in ctes):
+                node = node.copy()
+                node.set("this", exp.to_identifier(own[node.name]))
+                return node
             if isinstance(node, exp.Table) and node.args.get("db") is not None:
                 parts = [p.name for p in (node.args.get("catalog"), node.args.get("db")) if p is not None]
                 if parts and (parts[0] in self._attached or parts[0] in ("memory", "checked")):
@@ -279,6 +325,7 @@ class SparkConnection:
         if qualifier and qualifier[0] in self._attached:
             self._write(qualifier[0], name, frame)
             return _Result(rows=[])
+        name = self._target(name)
         self._appended.pop(name, None)
         if kind == "TABLE":
             frame = _materialize(frame)
@@ -293,7 +340,7 @@ class SparkConnection:
     def _insert(self, tree: exp.Insert) -> _Result:
         target = tree.this
         table = target if isinstance(target, exp.Table) else target.find(exp.Table)
-        name = table.name
+        name = (self._own or {}).get(table.name, table.name)
         new = _materialize(self.spark.sql(to_spark(self._unqualify(tree.expression), self.variables)))
         parts = self._appended.setdefault(name, [self.spark.table(name)])
         parts.append(new.toDF(*parts[0].columns))
@@ -454,14 +501,17 @@ def _hive_base(settings, table) -> Path | None:
     return base
 
 
-def open_workspace(settings) -> SparkConnection:
-    """A Spark connection on the published workspace (whichever engine built it): every panel and
-    checked input as a temporary view (``checked.promotions`` reads ``promotions``), for running
+def open_workspace(settings, tables: list[str] | None = None, source=None) -> SparkConnection:
+    """A Spark connection on the published workspace (whichever engine built it): the panels and
+    checked inputs as temporary views (``checked.promotions`` reads ``promotions``), for running
     the analyses' SQL (``sql/timing``) on Spark.
 
-    The tables are copied out of ``panels.duckdb`` as Parquet into a temporary folder (removed by
-    ``close()``); in local mode that is on this machine, on a cluster it must be a folder every
-    executor can read (``TMPDIR``).
+    ``tables`` names the ones to make (``purchase_gaps``, ``checked.promotions``; default: all),
+    ``source`` is an open read-only DuckDB connection on ``panels.duckdb`` to copy them from (one
+    already checked for freshness, ``workspace.connect``; default: the file opened here). Each table is
+    copied out as Parquet into a temporary folder (removed by ``close()``) and read by Spark; in
+    local mode that is on this machine, on a cluster it must be a folder every executor can read
+    (``TMPDIR``).
     """
     import tempfile
 
@@ -469,17 +519,30 @@ def open_workspace(settings) -> SparkConnection:
 
     from .. import workspace
 
-    panels_file = workspace.path(settings, workspace.PANELS)
-    if not panels_file.exists():
-        raise DataError(f"no built workspace in {settings.workspace_dir}; run `liftlag build -c {settings.config_path}` first")
+    local = source
+    if local is None:
+        panels_file = workspace.path(settings, workspace.PANELS)
+        if not panels_file.exists():
+            raise DataError(f"no built workspace in {settings.workspace_dir}; "
+                            f"run `liftlag build -c {settings.config_path}` first")
     con = SparkConnection(settings)
+    con.private_cursors = True  # DuckDB's cursors: temporary tables private to the cursor
     con._read_copy = Path(tempfile.mkdtemp(prefix="liftlag-spark-read-"))
-    local = duckdb.connect(str(panels_file), read_only=True)
     try:
-        tables = local.execute(
-            "SELECT schema_name, table_name FROM duckdb_tables() WHERE schema_name IN ('main', 'checked') "
-            "ORDER BY 1, 2").fetchall()
-        for schema, name in tables:
+        if local is None:
+            local = duckdb.connect(str(panels_file), read_only=True)
+        found = local.execute(
+            "SELECT schema_name, table_name FROM duckdb_tables() WHERE database_name = current_database() "
+            "AND schema_name IN ('main', 'checked') ORDER BY 1, 2").fetchall()
+        wanted = None if tables is None else set(tables)
+        chosen = [(schema, name) for schema, name in found
+                  if wanted is None or (name if schema == "main" else f"{schema}.{name}") in wanted]
+        if wanted is not None:
+            missing = wanted - {name if schema == "main" else f"{schema}.{name}" for schema, name in chosen}
+            if missing:
+                raise DataError(f"the workspace in {settings.workspace_dir} has no table {', '.join(sorted(missing))}; "
+                                f"run `liftlag build -c {settings.config_path}`")
+        for schema, name in chosen:
             out = con._read_copy / f"{schema}.{name}.parquet"
             target = str(out).replace("'", "''")
             local.execute(f"COPY (SELECT * FROM \"{schema}\".\"{name}\") TO '{target}' (FORMAT parquet)")
@@ -489,5 +552,6 @@ def open_workspace(settings) -> SparkConnection:
         con.close()
         raise
     finally:
-        local.close()
+        if source is None and local is not None:
+            local.close()
     return con

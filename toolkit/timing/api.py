@@ -46,7 +46,7 @@ from .ph_check import COLUMNS as PH_COLUMNS
 from .ph_check import late_interaction_check, time_fixed_check
 from .randomised import POOLED, fit_windows
 from .schedule import CampaignCadence
-from .spells import COVARIATES, SpellOptions, TimingTables, merge_periods
+from .spells import COVARIATES, SpellOptions, TimingTables, merge_periods, workspace_tables
 
 EFFECTS = {
     "acceleration": "promotion_available",
@@ -695,6 +695,16 @@ def options_from(settings) -> dict:
     return {name: getattr(settings.timing, name) for name in OPTION_NAMES}
 
 
+def open_sql(settings):
+    """The connection the timing SQL runs on: the published workspace on DuckDB, or with
+    ``[engine] kind = "spark"`` on Spark, which reads the panels the timing SQL names
+    (``spells.workspace_tables``) copied out as Parquet; the model fits stay in Python either way,
+    on the aggregated tables the SQL returns (``toolkit.engine.open_workspace_sql``)."""
+    from ..engine import open_workspace_sql
+
+    return open_workspace_sql(settings, workspace_tables)
+
+
 def run_timing(settings, out_dir: str | Path, console=None) -> dict:
     """The runner for ``liftlag demo``: analyse the workspace's purchase timing, write the tables.
 
@@ -702,10 +712,8 @@ def run_timing(settings, out_dir: str | Path, console=None) -> dict:
     """
     import time
 
-    from .. import workspace
-
     started = time.perf_counter()
-    con = workspace.connect(settings)
+    con = open_sql(settings)
     try:
         readout = analyse_timing(con, settings, **options_from(settings))
     finally:

@@ -34,14 +34,14 @@ def run_command(args) -> int:
     from .. import config
     from ..console import console, err_console
     from ..ensure import ensure_built
-    from .api import analyse_timing, options_from, write_timing
+    from .api import analyse_timing, open_sql, options_from, write_timing
 
     from ..results import check_out_dir
 
     settings = config.load(args.config)
     check_out_dir(args.out)
     ready = ensure_built(settings, console, use_last_good=getattr(args, "use_last_good", None), err_console=err_console)
-    con = ready.connect()
+    con = open_sql(ready.settings)  # DuckDB, or Spark with [engine] kind = "spark"
     try:
         readout = analyse_timing(con, settings, fit_cox=not args.no_cox, **options_from(settings))
     finally:

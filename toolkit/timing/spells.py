@@ -37,6 +37,8 @@ ORDER = (
     "timing_window_exposure",
     "timing_arm_cells",
 )
+# Small inputs computed in Python and registered as relations before the SQL runs.
+REGISTERED = ("timing_expected_starts", "timing_exposure_periods", "timing_periods", "timing_period_days")
 EPOCH = date(1970, 1, 1)
 COVARIATES = ("promotion_available", "in_dip", "in_dip_during_promotion", "in_anticipation", "coupons_received",
               "is_exposed")
@@ -110,6 +112,26 @@ def sql_text(name: str) -> str:
     if not path.is_file():
         raise AnalysisError(f"timing SQL file {path} is missing; reinstall liftlag from its source tree")
     return path.read_text(encoding="utf-8")
+
+
+def workspace_tables() -> list[str]:
+    """The workspace tables the timing SQL reads (``checked.<name>`` for a checked input), from the
+    SQL files themselves: every table named in them that no file makes and Python does not register.
+    The analysis's own queries (``analyse_timing``) read no others."""
+    import sqlglot
+    from sqlglot import exp
+
+    made = set(ORDER) | set(REGISTERED)
+    reads: set[str] = set()
+    for name in ORDER:
+        for tree in sqlglot.parse(sql_text(name), read="duckdb"):
+            if tree is None:
+                continue
+            ctes = {cte.alias for cte in tree.find_all(exp.CTE)}
+            for table in tree.find_all(exp.Table):
+                if table.name not in made and table.name not in ctes:
+                    reads.add(f"{table.db}.{table.name}" if table.db else table.name)
+    return sorted(reads)
 
 
 class TimingTables:
