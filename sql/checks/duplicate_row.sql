@@ -4,8 +4,8 @@
 -- Candidates first: order lines that share their customer, order, time and product (exact
 -- copies share every value, so also these four), rows of the other (small) tables that share a
 -- 64-bit hash of all their values. Only the candidates are then compared value by value, so a
--- hash collision, or two lines that differ in another value, never rejects a row. Grouping on
--- four columns rather than on every value and its text halves the rule's cost on large exports.
+-- hash collision, or two lines that differ in another value, never rejects a row. Hashing four
+-- columns rather than every value and its text costs about a third less on large exports.
 -- Reads: staged_transactions, staged_promotions, staged_assignments, staged_customers, staged_products
 -- Parameters: none
 WITH repeated_lines AS (
