@@ -51,32 +51,46 @@ coupon_arrivals AS (
     GROUP BY customer_id, 2
 ),
 
--- One fact per row, summed per customer-week below.
-facts AS (
-    SELECT customer_id, week_on, orders, net_amount, discount_amount, deal_orders,
-           false AS is_coupon_active, false AS is_holdout_active, 0 AS coupons
-    FROM weekly_orders
-    UNION ALL
-    SELECT customer_id, week_on, 0, 0.0, 0.0, 0, is_coupon_active, is_holdout_active, 0
-    FROM assigned_weeks
-    UNION ALL
-    SELECT customer_id, week_on, 0, 0.0, 0.0, 0, false, false, coupons
-    FROM coupon_arrivals
-),
-
-weeks AS (
+-- The campaign facts of a customer-week (assigned customers only: a small table).
+campaign_weeks AS (
     SELECT
         customer_id,
         week_on,
-        sum(orders) AS orders,
-        sum(net_amount) AS net_amount,
-        sum(discount_amount) AS discount_amount,
-        sum(deal_orders) AS deal_orders,
         bool_or(is_coupon_active) AS is_coupon_active,
-        bool_or(is_holdout_active) AS is_holdout_active,
-        sum(coupons) AS coupons
-    FROM facts
+        bool_or(is_holdout_active) AS is_holdout_active
+    FROM (
+        SELECT customer_id, week_on, is_coupon_active, is_holdout_active FROM assigned_weeks
+        UNION ALL
+        SELECT customer_id, week_on, false, false FROM coupon_arrivals
+    ) AS facts
     GROUP BY customer_id, week_on
+),
+
+-- Coupons received up to each arrival week, held until the customer's next arrival week.
+coupons_held AS (
+    SELECT
+        customer_id,
+        week_on AS held_from_on,
+        lead(week_on) OVER (PARTITION BY customer_id ORDER BY week_on ASC NULLS FIRST) AS held_until_on,
+        sum(coupons) OVER (
+            PARTITION BY customer_id ORDER BY week_on ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+        ) AS coupons_received
+    FROM coupon_arrivals
+),
+
+-- The weeks with an order beside the weeks with a campaign fact: every customer-week with either.
+weeks AS (
+    SELECT
+        coalesce(o.customer_id, c.customer_id) AS customer_id,
+        coalesce(o.week_on, c.week_on) AS week_on,
+        coalesce(o.orders, 0) AS orders,
+        coalesce(o.net_amount, 0.0) AS net_amount,
+        coalesce(o.discount_amount, 0.0) AS discount_amount,
+        coalesce(o.deal_orders, 0) AS deal_orders,
+        coalesce(c.is_coupon_active, false) AS is_coupon_active,
+        coalesce(c.is_holdout_active, false) AS is_holdout_active
+    FROM weekly_orders AS o
+    FULL OUTER JOIN campaign_weeks AS c ON o.customer_id = c.customer_id AND o.week_on = c.week_on
 )
 
 SELECT
@@ -89,8 +103,10 @@ SELECT
     b.week_on IS NOT NULL AS is_broadcast_running,
     w.is_coupon_active,
     w.is_holdout_active,
-    CAST(sum(w.coupons) OVER (
-        PARTITION BY w.customer_id ORDER BY w.week_on ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
-    ) AS BIGINT) AS coupons_received
+    CAST(coalesce(h.coupons_received, 0) AS BIGINT) AS coupons_received
 FROM weeks AS w
 LEFT JOIN broadcast_weeks AS b ON w.week_on = b.week_on
+LEFT JOIN coupons_held AS h
+    ON w.customer_id = h.customer_id
+    AND w.week_on >= h.held_from_on
+    AND (h.held_until_on IS NULL OR w.week_on < h.held_until_on)

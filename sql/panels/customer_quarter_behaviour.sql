@@ -9,6 +9,10 @@ WITH placed AS (
         customer_id,
         CAST(date_trunc('quarter', ordered_on) AS DATE) AS quarter_on,
         ordered_on,
+        -- the purchase's day (0-91) and week (0-13) within its quarter
+        CAST(date_diff('day', date_trunc('quarter', ordered_on), ordered_on) AS INTEGER) AS quarter_day,
+        CAST(date_diff('day', date_trunc('week', date_trunc('quarter', ordered_on)), date_trunc('week', ordered_on)) / 7
+             AS INTEGER) AS quarter_week,
         lines,
         quantity,
         net_amount,
@@ -25,8 +29,12 @@ SELECT
     CAST(year(quarter_on) AS VARCHAR) || 'Q' || CAST(quarter(quarter_on) AS VARCHAR) AS quarter,
     quarter_on,
     count(*) AS orders,
-    count(DISTINCT ordered_on) AS purchase_days,
-    count(DISTINCT date_trunc('week', ordered_on)) AS purchase_weeks,
+    -- Distinct days and weeks as the set bits of masks (days 0-45 and 46-91 of the quarter in two,
+    -- weeks in one): one pass, where count(DISTINCT ...) keeps every group's days and weeks.
+    CAST(bit_count(bit_or(CASE WHEN quarter_day < 46 THEN CAST(1 AS BIGINT) << quarter_day ELSE 0 END))
+         + bit_count(bit_or(CASE WHEN quarter_day >= 46 THEN CAST(1 AS BIGINT) << (quarter_day - 46) ELSE 0 END))
+         AS BIGINT) AS purchase_days,
+    CAST(bit_count(bit_or(CAST(1 AS BIGINT) << quarter_week)) AS BIGINT) AS purchase_weeks,
     CAST(date_diff('day', min(ordered_on), max(ordered_on)) AS INTEGER) AS active_span_days,
     CAST(sum(lines) AS BIGINT) AS lines,
     sum(quantity) AS quantity,

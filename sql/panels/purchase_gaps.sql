@@ -7,68 +7,55 @@ WITH bounds AS (
     SELECT max(ordered_on) AS export_end_on FROM orders
 ),
 
-coupons AS (
-    SELECT customer_id, assigned_at, starts_on, ends_on
-    FROM campaign_assignments
-    WHERE arm = 'treatment'
-),
-
--- Purchases and coupon arrivals on one time line per customer, in one window pass. Return-only
--- orders (net below zero) are not purchases: they neither start nor end a gap. A coupon that
--- arrives at the same moment as a purchase counts as received before it (kind 0 sorts first).
-events AS (
-    SELECT customer_id, ordered_at AS event_at, 1 AS kind, order_id, ordered_on, is_deal, depth,
-           promotion_id, CAST(NULL AS DATE) AS coupon_starts_on, CAST(NULL AS DATE) AS coupon_ends_on
+-- Return-only orders (net below zero) are not purchases: they neither start nor end a gap.
+purchases AS (
+    SELECT
+        customer_id,
+        order_id,
+        ordered_at,
+        ordered_on,
+        is_deal,
+        depth,
+        promotion_id,
+        lead(ordered_on) OVER (
+            PARTITION BY customer_id ORDER BY ordered_at ASC NULLS FIRST, order_id ASC NULLS FIRST
+        ) AS next_ordered_on
     FROM orders
     WHERE NOT is_return
-    UNION ALL
-    SELECT customer_id, assigned_at, 0, NULL, NULL, NULL, NULL, NULL, starts_on, ends_on
-    FROM coupons
 ),
 
-timeline AS (
+-- Coupons (treatment assignments) per customer and moment of arrival.
+coupon_moments AS (
+    SELECT customer_id, assigned_at, count(*) AS coupons, max(starts_on) AS starts_on, max(ends_on) AS ends_on
+    FROM campaign_assignments
+    WHERE arm = 'treatment'
+    GROUP BY customer_id, assigned_at
+),
+
+-- What a customer holds from one coupon's arrival until the next one's: the coupons received so
+-- far and, since campaign windows follow one another, the latest window among them (the one that
+-- can cover a purchase day). A small table: one row per coupon holder and moment of arrival.
+held AS (
     SELECT
-        *,
-        -- the next purchase: the earliest purchase day among the events that follow
-        min(CASE WHEN kind = 1 THEN ordered_on END) OVER (
-            PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
-            ROWS BETWEEN 1 FOLLOWING AND UNBOUNDED FOLLOWING
-        ) AS next_ordered_on,
-        sum(1 - kind) OVER (
-            PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
-            ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+        customer_id,
+        assigned_at AS held_from,
+        lead(assigned_at) OVER (PARTITION BY customer_id ORDER BY assigned_at ASC NULLS FIRST) AS held_until,
+        sum(coupons) OVER (
+            PARTITION BY customer_id ORDER BY assigned_at ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
         ) AS coupons_received,
-        max(CASE WHEN kind = 0 THEN event_at END) OVER (
-            PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
-            ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
-        ) AS last_coupon_at,
-        -- Campaign windows follow one another, so the coupon received last with the latest
-        -- window is the one that can cover the purchase day.
-        max(coupon_starts_on) OVER (
-            PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
-            ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+        max(starts_on) OVER (
+            PARTITION BY customer_id ORDER BY assigned_at ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
         ) AS held_starts_on,
-        max(coupon_ends_on) OVER (
-            PARTITION BY customer_id ORDER BY event_at ASC NULLS FIRST, kind ASC NULLS FIRST, order_id ASC NULLS FIRST
-            ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
+        max(ends_on) OVER (
+            PARTITION BY customer_id ORDER BY assigned_at ASC NULLS FIRST ROWS BETWEEN UNBOUNDED PRECEDING AND CURRENT ROW
         ) AS held_ends_on
-    FROM events
+    FROM coupon_moments
 ),
 
 broadcast_days AS (
     SELECT CAST(starts_at AS DATE) AS starts_on, CAST(ends_at AS DATE) AS ends_on
     FROM promotions
     WHERE audience = 'broadcast'
-),
-
-purchases AS (
-    SELECT
-        t.*,
-        EXISTS (
-            SELECT 1 FROM broadcast_days AS b WHERE t.ordered_on BETWEEN b.starts_on AND b.ends_on
-        ) AS is_broadcast_day
-    FROM timeline AS t
-    WHERE t.kind = 1
 )
 
 SELECT
@@ -81,8 +68,15 @@ SELECT
     p.is_deal,
     p.depth,
     p.promotion_id,
-    CAST(date_diff('day', CAST(p.last_coupon_at AS DATE), p.ordered_on) AS INTEGER) AS days_since_last_coupon,
-    CAST(p.coupons_received AS BIGINT) AS coupons_received,
-    p.is_broadcast_day OR coalesce(p.ordered_on BETWEEN p.held_starts_on AND p.held_ends_on, false) AS is_promotion_running
+    -- A coupon that arrives at the same moment as a purchase counts as received before it.
+    CAST(date_diff('day', CAST(h.held_from AS DATE), p.ordered_on) AS INTEGER) AS days_since_last_coupon,
+    CAST(coalesce(h.coupons_received, 0) AS BIGINT) AS coupons_received,
+    EXISTS (
+        SELECT 1 FROM broadcast_days AS d WHERE p.ordered_on BETWEEN d.starts_on AND d.ends_on
+    ) OR coalesce(p.ordered_on BETWEEN h.held_starts_on AND h.held_ends_on, false) AS is_promotion_running
 FROM purchases AS p
 CROSS JOIN bounds AS b
+LEFT JOIN held AS h
+    ON p.customer_id = h.customer_id
+    AND p.ordered_at >= h.held_from
+    AND (h.held_until IS NULL OR p.ordered_at < h.held_until)

@@ -27,14 +27,29 @@ segmented AS (
     SELECT day_on, 'channel' AS segment_kind, channel AS segment, order_id, quantity, net_amount, promotion_id
     FROM lines
     WHERE channel IS NOT NULL
+),
+
+-- Each order's lines in a segment on a day first, then the segment's day: counting the distinct
+-- orders directly would hold every order id of every segment-day in memory at once.
+per_order AS (
+    SELECT
+        day_on,
+        segment_kind,
+        segment,
+        order_id,
+        bool_or(quantity > 0) AS is_purchased,
+        sum(net_amount) AS net_amount,
+        count(promotion_id) AS deal_lines
+    FROM segmented
+    GROUP BY day_on, segment_kind, segment, order_id
 )
 
 SELECT
     day_on,
     segment_kind,
     segment,
-    count(DISTINCT CASE WHEN quantity > 0 THEN order_id END) AS orders,
+    count(*) FILTER (WHERE is_purchased) AS orders,
     sum(net_amount) AS net_amount,
-    count(promotion_id) AS deal_lines
-FROM segmented
+    CAST(sum(deal_lines) AS BIGINT) AS deal_lines
+FROM per_order
 GROUP BY day_on, segment_kind, segment

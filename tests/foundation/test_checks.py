@@ -46,6 +46,8 @@ REJECT_CASES = {
                          [["o10", "  ", "2026-03-06 10:00:00", "p1", "1", "10", "10", "0", ""]], [OK_LINE]),
     "unparseable_value": ("transactions",
                           [["o10", "c2", "06/03/2026 nope", "p1", "1", "10", "10", "0", ""]], [OK_LINE]),
+    # The passing line shares customer, order, time and product with the first line (so the rule
+    # compares the two value by value) and differs only in its promotion.
     "duplicate_row": ("transactions", [TINY_TRANSACTIONS[0]],
                       [["o1", "c1", "2026-02-02 09:00:00", "p1", "2", "20", "20", "0", "", ][:8] + ["PA"]]),
     "unknown_promotion": ("transactions",
