@@ -239,7 +239,6 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         for key, value in parameters(settings).items():
             con.execute(f"SET VARIABLE {key} = ?", [value])
         con.execute("ATTACH ? AS out", [str(panels_private)])
-        _cheaper_string_compression(con)
         con.execute("SET search_path = 'out.main'")
         for name in PANEL_ORDER:
             with timings.step(f"panel {name}") as step:
@@ -298,22 +297,6 @@ def _build(settings: Settings, record: dict, fp: str, say, on_check, command: st
         "fingerprint", "check_fingerprint", "started_at", "finished_at", "seconds", "rows", "steps",
         "check_reused_from", "since", "command", "version")})
     return result
-
-
-def _cheaper_string_compression(con) -> None:
-    """Write the panels' text columns without DuckDB's DICT_FSST compression (DuckDB 1.3 and later).
-
-    Ids (order, customer, promotion) are most of the panels' text and nearly all distinct:
-    compressing them that way was about 1.7 of the 19 CPU seconds of a cold build of 10M order
-    lines (bench/README.md), for a file of 283 MB instead of 501 MB. Numbers keep their
-    compression. DuckDB versions without that method (or the Spark engine) are left as they are.
-    """
-    if not isinstance(con, duckdb.DuckDBPyConnection):
-        return
-    try:
-        con.execute("SET disabled_compression_methods = 'dict_fsst'")
-    except duckdb.Error:
-        pass  # an older DuckDB: no such method
 
 
 def _seal_checked(settings: Settings, panels_private: Path, checked: Path) -> None:
