@@ -12,9 +12,11 @@ collects each table once with its row facts, then computes:
   value_not_allowed, ends_before_starts, unknown_promotion); warnings (rows kept) are counted per
   rule (discount_deeper_than_depth, order_outside_promotion_dates, customer_in_both_arms,
   future_timestamp, net_above_list, unparseable_optional, return_sign_mismatch);
-- all six panels, with liftlag's columns and rules, as lazy queries over the accepted rows:
+- all eight panels, with liftlag's columns and rules, as lazy queries over the accepted rows:
   campaign_assignments, orders, customer_periods, purchase_gaps, campaign_windows,
-  customer_quarters.
+  customer_quarters, customer_quarter_behaviour, segment_days (its category segments need a
+  products table, which the peers do not read: only the channel segments, as liftlag builds
+  them without one).
 
 Writes ``OUT_DIR/check.json`` (rows read, rejected rows per table and reason, warned rows per
 table and rule, rows per panel, seconds per step) and ``OUT_DIR/<panel>.parquet``; prints the
