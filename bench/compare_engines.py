@@ -13,7 +13,7 @@ seconds, CPU seconds = user + system, peak RSS), with the 1-minute load average 
 - ``liftlag build`` on Spark local mode (``--spark``);
 - the bare DuckDB job of ``peers/bare_duckdb.py`` (orders, customer-week and gap tables only,
   no checks);
-- ``peers/pandas_peer.py`` and ``peers/polars_peer.py``: the same check and all six panels,
+- ``peers/pandas_peer.py`` and ``peers/polars_peer.py``: the same check and all eight panels,
   written as an analyst would in a notebook.
 
 A peer whose resident memory passes ``--rss-cap-gb`` (default 16 GB, the machine is shared) is
@@ -208,6 +208,7 @@ def main() -> int:
     lines = json.loads((export / "generation.json").read_text())["lines"] if (export / "generation.json").exists() else None
     results: dict[str, dict] = {}
     agree: dict[str, object] = {}
+    compared: dict[str, dict] = {}  # peer -> panel -> agreement.compare_panel result
     notes = []
     with tempfile.TemporaryDirectory(prefix="liftlag_compare_") as tmp:
         tmp = Path(tmp)
@@ -252,6 +253,7 @@ def main() -> int:
             elif "duckdb" in ws and results["liftlag build (duckdb)"]["exit"] == 0:
                 found = agreement.compare(ws["duckdb"], out)
                 agree[peer] = found["agree"]
+                compared[peer] = found["panels"]
                 if found.get("agree_but_zero_net_orders"):
                     agree[peer] = f"yes but {found['agree_but_zero_net_orders']} zero-net orders"
                     flips = found["panels"]["orders"]["zero_net_flips"]
@@ -272,6 +274,10 @@ def main() -> int:
               f"{r.get('peak_rss_mb', 0):8d} {'' if rw is None else f'x{rw:.2f}':>13s} {'' if rr is None else f'x{rr:.2f}':>12s} "
               f"{r['load_before']:5.2f}  {r['exit']}")
     print("outputs agree:", json.dumps(agree), "| row counts (liftlag vs bare):", json.dumps(counts))
+    for peer, panels in compared.items():
+        print(f"{peer} panels: " + ", ".join(
+            f"{name} {'agrees' if p['agree'] else ('not built' if p['agree'] is None else 'DIFFERS')}"
+            for name, p in panels.items()))
     if notes:
         print("steps:", "; ".join(notes))
 

@@ -5,16 +5,18 @@ Usage: python bench/peers/agreement.py WORKSPACE PEER_OUT_DIR
 ``WORKSPACE`` is a built liftlag workspace (``checked.duckdb``, ``panels.duckdb``); the peer's
 folder holds ``check.json`` and ``<panel>.parquet`` (``pandas_peer.py``, ``polars_peer.py``).
 Agreement means: the same rows read per table, the same rejected rows per table and reason, the
-same warned rows per table and rule; and for each panel the peer wrote, the same rows (each
-panel is matched on its key, which is the same as comparing both tables sorted by it; no key
-may repeat), with every column equal: floats within 1e-9 (relative to the larger value, or
-absolute below 1), dates and timestamps after casting the peer's column to liftlag's type,
-nulls only where liftlag has nulls. Prints one JSON line; exits 1 on any difference.
+same warned rows per table and rule; and for each panel the peer wrote (all eight panels, keys
+in ``export_config.PANEL_KEYS``), the same rows (each panel is matched on its key, which is the
+same as comparing both tables sorted by it; no key may repeat), with every column equal:
+floats within 1e-9 (relative to the larger value, or absolute below 1), dates and timestamps
+after casting the peer's column to liftlag's type, nulls only where liftlag has nulls. Prints one
+JSON line; exits 1 on any difference.
 
 One difference is told apart rather than hidden: an order whose lines net to zero (a return
 cancelling a purchase in the same order) sums to 0.0 or to -1e-15 depending on the order in which
 the floats are added, so ``is_return`` (``net_amount < 0``) may flip, and with it that
-customer's purchase count in customer_periods and customer_quarters and a row of purchase_gaps.
+customer's purchase count in customer_periods, customer_quarters and customer_quarter_behaviour
+and a row of purchase_gaps.
 ``agree_but_zero_net_orders`` is the number of such orders when every difference is of this kind
 (the orders differ only in is_return, both sums within 1e-9 of zero, and every other differing
 row belongs to one of their customers); ``agree`` stays false.

@@ -45,6 +45,8 @@ PANEL_KEYS = {
     "purchase_gaps": ("customer_id", "order_id"),
     "campaign_windows": ("promotion_id", "customer_id"),
     "customer_quarters": ("customer_id", "quarter_on"),
+    "customer_quarter_behaviour": ("customer_id", "quarter_on"),
+    "segment_days": ("day_on", "segment_kind", "segment"),
 }
 
 

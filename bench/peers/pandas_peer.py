@@ -11,8 +11,10 @@ and the column mapping) with ``pd.read_parquet`` / ``pd.read_csv`` into memory, 
   value_not_allowed, ends_before_starts, unknown_promotion); warnings (rows kept) are counted per
   rule (discount_deeper_than_depth, order_outside_promotion_dates, customer_in_both_arms,
   future_timestamp, net_above_list, unparseable_optional, return_sign_mismatch);
-- all six panels, with liftlag's columns and rules: campaign_assignments, orders,
-  customer_periods, purchase_gaps, campaign_windows, customer_quarters.
+- all eight panels, with liftlag's columns and rules: campaign_assignments, orders,
+  customer_periods, purchase_gaps, campaign_windows, customer_quarters,
+  customer_quarter_behaviour, segment_days (its category segments need a products table, which
+  the peers do not read: only the channel segments, as liftlag builds them without one).
 
 Writes ``OUT_DIR/check.json`` (rows read, rejected rows per table and reason, warned rows per
 table and rule, rows per panel, seconds per step) and ``OUT_DIR/<panel>.parquet``; prints the
@@ -364,9 +366,16 @@ def build_purchase_gaps(o: pd.DataFrame, ca: pd.DataFrame, p: pd.DataFrame) -> p
                  "is_promotion_running"]]
 
 
+def quarter_start(d: pd.Series) -> pd.Series:
+    return pd.to_datetime(pd.DataFrame({"year": d.dt.year, "month": (d.dt.month - 1) // 3 * 3 + 1, "day": 1}))
+
+
+def quarter_label(quarter_on: pd.Series) -> pd.Series:
+    return quarter_on.dt.year.astype(str) + "Q" + quarter_on.dt.quarter.astype(str)
+
+
 def build_customer_quarters(o: pd.DataFrame) -> pd.DataFrame:
-    d = o["ordered_on"]
-    quarter_on = pd.to_datetime(pd.DataFrame({"year": d.dt.year, "month": (d.dt.month - 1) // 3 * 3 + 1, "day": 1}))
+    quarter_on = quarter_start(o["ordered_on"])
     purchase = ~o["is_return"]
     deal = purchase & o["is_deal"]
     q = (o.assign(quarter_on=quarter_on, purchase=purchase, deal=deal,
@@ -376,9 +385,46 @@ def build_customer_quarters(o: pd.DataFrame) -> pd.DataFrame:
                deal_net_amount=("deal_net", "sum"), discount_amount=("discount_amount", "sum"),
                mean_depth=("deal_depth", "mean"))
           .reset_index())
-    q["quarter"] = q["quarter_on"].dt.year.astype(str) + "Q" + q["quarter_on"].dt.quarter.astype(str)
+    q["quarter"] = quarter_label(q["quarter_on"])
     return q[["customer_id", "quarter", "quarter_on", "orders", "deal_orders", "net_amount", "deal_net_amount",
               "discount_amount", "mean_depth"]]
+
+
+def build_customer_quarter_behaviour(o: pd.DataFrame) -> pd.DataFrame:
+    bought = o[~o["is_return"]]
+    d = bought["ordered_on"]
+    q = (bought.assign(quarter_on=quarter_start(d), week_on=week_start(d))
+               .groupby(["customer_id", "quarter_on"], sort=False)
+               .agg(orders=("order_id", "size"), purchase_days=("ordered_on", "nunique"),
+                    purchase_weeks=("week_on", "nunique"), first_on=("ordered_on", "min"),
+                    last_on=("ordered_on", "max"), lines=("lines", "sum"), quantity=("quantity", "sum"),
+                    net_amount=("net_amount", "sum"), list_amount=("list_amount", "sum"),
+                    discount_amount=("discount_amount", "sum"), deal_orders=("is_deal", "sum"),
+                    max_depth=("depth", "max"))
+               .reset_index())
+    q["quarter"] = quarter_label(q["quarter_on"])
+    q["active_span_days"] = (q["last_on"] - q["first_on"]).dt.days.astype("int32")
+    q["max_depth"] = q["max_depth"].fillna(0.0)
+    for col in ("orders", "purchase_days", "purchase_weeks", "lines", "deal_orders"):
+        q[col] = q[col].astype("int64")
+    return q[["customer_id", "quarter", "quarter_on", "orders", "purchase_days", "purchase_weeks", "active_span_days",
+              "lines", "quantity", "net_amount", "list_amount", "discount_amount", "deal_orders", "max_depth"]]
+
+
+def build_segment_days(t: pd.DataFrame) -> pd.DataFrame:
+    # The peers read no products table, so no line has a category (as in liftlag without one).
+    lines = t.assign(day_on=t["ordered_at"].dt.normalize(), category=None,
+                     bought_order=t["order_id"].where(t["quantity"] > 0))
+    segmented = pd.concat(
+        [lines[lines[kind].notna()].assign(segment_kind=kind, segment=lines[kind]) for kind in ("category", "channel")],
+        ignore_index=True)
+    days = (segmented.groupby(["day_on", "segment_kind", "segment"], sort=False)
+                     .agg(orders=("bought_order", "nunique"), net_amount=("net_amount", "sum"),
+                          deal_lines=("promotion_id", "count"))
+                     .reset_index())
+    days["orders"] = days["orders"].astype("int64")
+    days["deal_lines"] = days["deal_lines"].astype("int64")
+    return days[["day_on", "segment_kind", "segment", "orders", "net_amount", "deal_lines"]]
 
 
 def build_campaign_windows(ex: Export, o: pd.DataFrame, ca: pd.DataFrame, t: pd.DataFrame) -> pd.DataFrame:
@@ -499,6 +545,8 @@ def main() -> None:
     panels["purchase_gaps"] = build_purchase_gaps(o, ca, p)
     panels["campaign_windows"] = build_campaign_windows(ex, o, ca, t)
     panels["customer_quarters"] = build_customer_quarters(o)
+    panels["customer_quarter_behaviour"] = build_customer_quarter_behaviour(o)
+    panels["segment_days"] = build_segment_days(t)
     lap("panels")
     for name, df in panels.items():
         df.to_parquet(args.out / f"{name}.parquet", index=False)

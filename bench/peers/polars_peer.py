@@ -12,9 +12,11 @@ collects each table once with its row facts, then computes:
   value_not_allowed, ends_before_starts, unknown_promotion); warnings (rows kept) are counted per
   rule (discount_deeper_than_depth, order_outside_promotion_dates, customer_in_both_arms,
   future_timestamp, net_above_list, unparseable_optional, return_sign_mismatch);
-- all six panels, with liftlag's columns and rules, as lazy queries over the accepted rows:
+- all eight panels, with liftlag's columns and rules, as lazy queries over the accepted rows:
   campaign_assignments, orders, customer_periods, purchase_gaps, campaign_windows,
-  customer_quarters.
+  customer_quarters, customer_quarter_behaviour, segment_days (its category segments need a
+  products table, which the peers do not read: only the channel segments, as liftlag builds
+  them without one).
 
 Writes ``OUT_DIR/check.json`` (rows read, rejected rows per table and reason, warned rows per
 table and rule, rows per panel, seconds per step) and ``OUT_DIR/<panel>.parquet``; prints the
@@ -321,6 +323,38 @@ def build_customer_quarters(o: pl.LazyFrame) -> pl.LazyFrame:
     )
 
 
+def build_customer_quarter_behaviour(o: pl.LazyFrame) -> pl.LazyFrame:
+    d = pl.col("ordered_on")
+    return (
+        o.filter(~pl.col("is_return"))
+        .group_by("customer_id", d.dt.truncate("1q").alias("quarter_on"))
+        .agg(pl.len().cast(pl.Int64).alias("orders"), d.n_unique().cast(pl.Int64).alias("purchase_days"),
+             week(d).n_unique().cast(pl.Int64).alias("purchase_weeks"),
+             (d.max() - d.min()).dt.total_days().cast(pl.Int32).alias("active_span_days"),
+             pl.col("lines").sum().cast(pl.Int64), pl.col("quantity").sum(), pl.col("net_amount").sum(),
+             pl.col("list_amount").sum(), pl.col("discount_amount").sum(),
+             pl.col("is_deal").sum().cast(pl.Int64).alias("deal_orders"),
+             pl.col("depth").max().fill_null(0.0).alias("max_depth"))
+        .select("customer_id", (pl.col("quarter_on").dt.year().cast(pl.String) + "Q"
+                                + pl.col("quarter_on").dt.quarter().cast(pl.String)).alias("quarter"),
+                "quarter_on", "orders", "purchase_days", "purchase_weeks", "active_span_days", "lines", "quantity",
+                "net_amount", "list_amount", "discount_amount", "deal_orders", "max_depth")
+    )
+
+
+def build_segment_days(t: pl.LazyFrame) -> pl.LazyFrame:
+    # The peers read no products table, so no line has a category (as in liftlag without one).
+    lines = t.select(pl.col("ordered_at").dt.date().alias("day_on"), "order_id", "quantity", "net_amount",
+                     "promotion_id", "channel", pl.lit(None, dtype=pl.String).alias("category"))
+    segmented = pl.concat([
+        lines.filter(pl.col(kind).is_not_null()).with_columns(pl.lit(kind).alias("segment_kind"),
+                                                              pl.col(kind).alias("segment"))
+        for kind in ("category", "channel")])
+    return segmented.group_by("day_on", "segment_kind", "segment").agg(
+        pl.col("order_id").filter(pl.col("quantity") > 0).n_unique().cast(pl.Int64).alias("orders"),
+        pl.col("net_amount").sum(), pl.col("promotion_id").count().cast(pl.Int64).alias("deal_lines"))
+
+
 def build_campaign_windows(ex: Export, o: pl.LazyFrame, ca: pl.LazyFrame, t: pl.LazyFrame) -> pl.LazyFrame:
     keys = ["promotion_id", "customer_id"]
     targeted = ca.filter(pl.col("audience") == "targeted").select(keys + ["arm", "assigned_at", "starts_on", "ends_on"])
@@ -423,6 +457,8 @@ def main() -> None:
         "purchase_gaps": build_purchase_gaps(o.lazy(), ca.lazy(), p.lazy(), broadcast_days).collect(),
         "campaign_windows": build_campaign_windows(ex, o.lazy(), ca.lazy(), acc["transactions"]).collect(),
         "customer_quarters": build_customer_quarters(o.lazy()).collect(),
+        "customer_quarter_behaviour": build_customer_quarter_behaviour(o.lazy()).collect(),
+        "segment_days": build_segment_days(acc["transactions"]).collect(),
     }
     lap("panels")
     for name, df in panels.items():

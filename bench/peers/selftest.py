@@ -8,9 +8,11 @@ rows of ``tests/spark/test_parity.py``: blank and unparseable values, a duplicat
 unknown promotion, a date beyond the horizon, a duplicate promotion key, a value outside the
 allowed codes, a customer in both arms, a future time, a return with a positive amount, a net
 above list, a NaN amount, a time with a UTC offset; without its customers and products
-tables, which the peers do not read), builds it with liftlag, runs both peers on it and
-compares everything with ``agreement.py``. Not timed. Prints one line per peer; exits 1 on
-any difference.
+tables, which the peers do not read), gives its order lines a sales channel (some lines none,
+one order split over two channels, a return alone in its channel on its day) so that
+segment_days has rows, builds it with liftlag, runs both peers on it and compares everything
+with ``agreement.py``. Not timed. Prints one line per peer with the rows of each panel; exits 1
+on any difference.
 """
 
 from __future__ import annotations
@@ -28,9 +30,31 @@ ROOT = HERE.parents[1]
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(HERE))
 import agreement  # noqa: E402
-from tests.conftest import write_export  # noqa: E402
+from tests.conftest import TRANSACTION_COLUMNS, write_csv, write_export  # noqa: E402
 from tests.spark.test_parity import (  # noqa: E402
     INVERTED, MESSY_ASSIGNMENTS, MESSY_PROMOTIONS, MESSY_TRANSACTIONS)
+
+# The sales channel of some order lines, by (order, product); the other lines have none.
+CHANNELS = {("o1", "p1"): "web", ("o1", "p2"): "store", ("o2", "p1"): "web", ("o3", "p2"): "web",
+            ("o4", "p1"): "store", ("o5", "p2"): "store", ("o6", "p1"): "web", ("o6", "p2"): "web",
+            ("o8", "p2"): "store", ("o9", "p1"): "store", ("o9", "p2"): "web", ("o18", "p1"): "web",
+            ("o21", "p1"): "phone", ("o13", "p1"): "web"}
+
+
+def with_channel(folder: Path, parquet: bool) -> None:
+    """Add the channel column to the export's order lines (then convert them to Parquet if asked),
+    as ``write_export`` does for the other columns."""
+    csv_path = folder / "transactions.csv"
+    rows = [row + [CHANNELS.get((row[0], row[3]), "")] for row in MESSY_TRANSACTIONS]
+    write_csv(csv_path, TRANSACTION_COLUMNS + ["channel"], rows)
+    if parquet:
+        import duckdb
+
+        con = duckdb.connect()
+        con.execute("COPY (SELECT * FROM read_csv(?)) TO ? (FORMAT parquet)",
+                    [str(csv_path), str(folder / "transactions.parquet")])
+        con.close()
+        csv_path.unlink()
 
 
 def main() -> int:
@@ -46,6 +70,7 @@ def main() -> int:
         for step, promotions in (("build", MESSY_PROMOTIONS), ("check", MESSY_PROMOTIONS + [INVERTED])):
             config = write_export(tmp / step, transactions=MESSY_TRANSACTIONS, promotions=promotions,
                                   assignments=MESSY_ASSIGNMENTS, parquet=args.parquet)
+            with_channel(config.parent, args.parquet)
             text = re.sub(r"(?ms)^\[tables\.(customers|products)\]\npath = \"[^\"]+\"\n", "", config.read_text())
             # A third of the rows are faulty on purpose: let the sanity gates pass them.
             config.write_text(text + "\n[gates]\nmin_lines_accepted_share = 0.5\n")
@@ -62,8 +87,10 @@ def main() -> int:
                     failed = True
                     continue
                 found = agreement.compare(config.parent / ".liftlag", out)
-                rejects = json.loads((out / "check.json").read_text())["rejects"]
-                panels = "every panel" if found["panels"] else "counts only"
+                summary = json.loads((out / "check.json").read_text())
+                rejects = summary["rejects"]
+                rows = ", ".join(f"{name} {n}" for name, n in summary.get("rows", {}).items())
+                panels = f"every panel: {rows}" if found["panels"] else "counts only"
                 print(f"{step}, {peer}: {'agrees' if found['agree'] else 'DISAGREES'} ({panels}); "
                       f"rejects {json.dumps(rejects, sort_keys=True)}")
                 if not found["agree"]:
