@@ -148,6 +148,15 @@ def _path_root(path: Path) -> Path:
     return path.resolve() if path.is_dir() else path.resolve().parent
 
 
+def recorded_name(settings, table, file: str) -> str:
+    """A file's name in the build record: relative to the folder the table's path starts from, so
+    that the same files reached through another path (a moved export, another config) are the
+    same inputs; files outside that folder keep their path as given."""
+    path = Path(file).resolve()
+    root = _path_root(settings.resolve(table.path))
+    return path.relative_to(root).as_posix() if path.is_relative_to(root) else str(file)
+
+
 def current(settings) -> dict:
     """The record of what a build of ``settings`` would be made from now.
 
@@ -161,13 +170,8 @@ def current(settings) -> dict:
     inputs = {}
     for name, table in sorted(settings.tables.items()):
         inputs[name] = fingerprint_files(sources.resolve_files(settings, table))
-        # Files are named relative to the folder the table's path starts from, so that the same
-        # files reached through another path (a moved export, another config) are the same inputs.
-        root = _path_root(settings.resolve(table.path))
         for f in inputs[name]:
-            path = Path(f["path"]).resolve()
-            if path.is_relative_to(root):
-                f["path"] = path.relative_to(root).as_posix()
+            f["path"] = recorded_name(settings, table, f["path"])
     # A table's path is fingerprinted through its files; its other settings as they are.
     tables = {name: {k: v for k, v in body.items() if k != "path"} if isinstance(body, dict) else body
               for name, body in settings.raw.get("tables", {}).items()}

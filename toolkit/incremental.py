@@ -61,16 +61,6 @@ class Plan:
                 f"{len(self.kept_files)} earlier file(s) keep their verdicts from the last build")
 
 
-def _relative(settings: Settings, table, files: list[str]) -> dict[str, str]:
-    """Each file's path as the build record names it (relative to the table path's root)."""
-    root = freshness._path_root(settings.resolve(table.path))
-    out = {}
-    for f in files:
-        p = Path(f).resolve()
-        out[f] = p.relative_to(root).as_posix() if p.is_relative_to(root) else str(p)
-    return out
-
-
 def plan(settings: Settings, since: dt.date, record: dict) -> Plan:
     """Decide which files a ``--since`` build checks; ``record`` is ``freshness.current(settings)``."""
     result = Plan(since=since, asked=since)
@@ -107,7 +97,7 @@ def plan(settings: Settings, since: dt.date, record: dict) -> Plan:
         return result
     straddling = [d.first for d in days.values() if d.first < since <= d.last]
     result.since = min([since, *straddling])
-    named = _relative(settings, table, files)
+    named = {f: freshness.recorded_name(settings, table, f) for f in files}
     before = {named[f]: f for f, d in days.items() if d.last < result.since}
     old_entries = {e["path"]: e for e in old["inputs"].get("transactions", [])}
     new_entries = {e["path"]: e for e in record["inputs"]["transactions"]}
